@@ -1,0 +1,2 @@
+//! actswap: find activation functions in ONNX models, convert them to forms a target runtime
+//! accepts, and measure what the swap costs in drift and latency.

@@ -101,7 +101,17 @@ def info_figures(model):
         "initializer_raw_bytes": sum(len(t.raw_data) for t in g.initializer),
         "local_function_count": len(model.functions),
         "subgraph_count": count_subgraphs(g),
+        "unnamed_node_count": sum(1 for n in g.node if not n.name),
+        "duplicate_node_names": duplicate_node_names(g),
     }
+
+
+def duplicate_node_names(graph):
+    """Node names used more than once, counting an unnamed node's first output
+    as its name (runtimes that name such nodes after their output clash too)."""
+    names = [n.name or (n.output[0] if n.output else "") for n in graph.node]
+    counts = Counter(n for n in names if n)
+    return sorted(n for n, c in counts.items() if c > 1)
 
 
 def opset_imports(model):

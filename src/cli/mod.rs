@@ -1,0 +1,84 @@
+//! The command line: one file per subcommand, a thin [`main`] and documented exit codes.
+//!
+//! Exit codes: 0 success; 1 a budget was exceeded or a site could not be served; 2 an error
+//! (bad input, unreadable model, invalid options).
+
+mod info;
+mod output;
+
+use std::process::ExitCode;
+
+use anyhow::Result;
+use clap::{Parser, Subcommand};
+
+/// Success.
+pub const EXIT_OK: u8 = 0;
+/// A drift budget was exceeded, or a site had no accepted form.
+pub const EXIT_OVER_BUDGET: u8 = 1;
+/// An error: bad input, unreadable model, invalid options.
+pub const EXIT_ERROR: u8 = 2;
+
+#[derive(Debug, Parser)]
+#[command(
+    name = "actswap",
+    version,
+    about = "Find, convert and audit activation functions in ONNX models",
+    long_about = "Find every activation site in an ONNX model (fused ops and the primitive chains \
+exporters spell them as), convert them to forms a target runtime accepts, and measure the numeric \
+drift and latency of the swap on CPU.",
+    after_help = "Exit codes: 0 ok, 1 over budget or unserved sites, 2 error."
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+enum Command {
+    Info(info::Args),
+}
+
+/// Runs the command line and maps the outcome to an exit code; errors print as one line.
+pub fn main() -> ExitCode {
+    std::panic::set_hook(Box::new(|info| {
+        let at = info
+            .location()
+            .map(|l| format!(" at {}:{}", l.file(), l.line()))
+            .unwrap_or_default();
+        let msg = info
+            .payload()
+            .downcast_ref::<&str>()
+            .map(|s| s.to_string())
+            .or_else(|| info.payload().downcast_ref::<String>().cloned())
+            .unwrap_or_else(|| "unknown cause".into());
+        eprintln!("actswap: internal error{at}: {msg}");
+    }));
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            let code = if e.use_stderr() { EXIT_ERROR } else { EXIT_OK };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    match std::panic::catch_unwind(|| run(cli)) {
+        Ok(Ok(code)) => code,
+        Ok(Err(e)) if output::is_broken_pipe(&e) => ExitCode::from(EXIT_OK),
+        Ok(Err(e)) => {
+            eprintln!("actswap: error: {}", one_line(&format!("{e:#}")));
+            ExitCode::from(EXIT_ERROR)
+        }
+        Err(_) => ExitCode::from(EXIT_ERROR),
+    }
+}
+
+fn run(cli: Cli) -> Result<ExitCode> {
+    match cli.command {
+        Command::Info(args) => info::run(args),
+    }
+}
+
+/// Folds a multi-line message into one line.
+fn one_line(s: &str) -> String {
+    s.split_whitespace().collect::<Vec<_>>().join(" ")
+}

@@ -1,0 +1,20 @@
+//! ONNX models as files: the generated protobuf types, lossless load and save, external data,
+//! tensor values and the graph index that later stages query.
+
+pub mod builder;
+pub mod external;
+pub mod index;
+pub mod model;
+pub mod summary;
+pub mod tensor;
+pub mod walk;
+
+/// Types generated from `proto/onnx.proto` by prost (see build.rs).
+#[allow(clippy::all, missing_docs)]
+pub mod proto {
+    include!(concat!(env!("OUT_DIR"), "/onnx.rs"));
+}
+
+pub use index::{GraphIndex, GraphKind, ModelIndex};
+pub use model::{Model, SaveOptions};
+pub use tensor::TensorValue;

@@ -1,5 +1,6 @@
 //! actswap: find activation functions in ONNX models, convert them to forms a target runtime
 //! accepts, and measure what the swap costs in drift and latency.
 
+pub mod catalog;
 pub mod cli;
 pub mod onnx;

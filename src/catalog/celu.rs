@@ -1,0 +1,58 @@
+//! celu: max(0, x) + min(0, alpha * (e^(x/alpha) - 1)).
+
+use super::numeric::{bisect, finite};
+use super::{FusedOp, Kind, Param};
+
+pub const KIND: Kind = Kind {
+    id: "celu",
+    title: "CELU (continuously differentiable ELU)",
+    params: &[Param {
+        name: "alpha",
+        default: 1.0,
+        per_channel: false,
+        doc: "scale of the negative branch, which tends to -alpha; positive",
+    }],
+    reference,
+    recover,
+    breakpoints: |_| vec![0.0],
+    fused: &[FusedOp {
+        domain: "",
+        op_type: "Celu",
+        since: 12,
+        note: "float32 only; function body Div, Elu, Mul (ONNX Celu schema); \
+               tract 0.23.9 computes alpha != 1 wrongly (the expansion omits the multiplication \
+               by alpha), so such sites want the primitive form there",
+    }],
+    formula: "f(x) = max(0, x) + min(0, alpha * (exp(x / alpha) - 1))",
+    source: "Barron 2017, 'Continuously Differentiable Exponential Linear Units', \
+             arXiv:1704.07483 (from memory); ONNX operator schema Celu",
+    forms: &[
+        "fused: Celu(x; alpha) (opset 12)",
+        "primitive: Mul(alpha, Elu(Div(x, alpha); alpha = 1))",
+    ],
+    example: "A glacier-melt emulator (invented) uses Celu(alpha = 2): celu(-1; 2) = \
+              -0.7869386805747332.",
+    numeric_notes: "celu(x; 1) equals elu(x; 1) and is reported as elu, which ONNX has since \
+                    opset 6. Recovery solves alpha * (e^(-1/alpha) - 1) = f(-1), monotone in \
+                    alpha > 0, by bisection on log(alpha).",
+    piecewise_linear: false,
+};
+
+fn reference(x: f64, p: &[f64]) -> f64 {
+    let alpha = p[0];
+    x.max(0.0) + (alpha * (x / alpha).exp_m1()).min(0.0)
+}
+
+fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
+    let y = finite(f, -1.0)?;
+    if !(y > -1.0 && y < 0.0) {
+        return None;
+    }
+    // g(alpha) = alpha * expm1(-1 / alpha) falls from ~0 to -1 as alpha grows.
+    let g = |log_alpha: f64| {
+        let a = log_alpha.exp();
+        a * (-1.0 / a).exp_m1()
+    };
+    let (lo, hi) = bisect((1e-9f64).ln(), (1e12f64).ln(), |t| g(t) < y);
+    Some(vec![(lo / 2.0 + hi / 2.0).exp()])
+}

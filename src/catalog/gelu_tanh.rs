@@ -1,0 +1,54 @@
+//! gelu_tanh: the tanh approximation of GELU.
+
+use std::f64::consts::{FRAC_1_SQRT_2, FRAC_2_SQRT_PI};
+
+use super::numeric::sigmoid;
+use super::{FusedOp, Kind, nothing_to_recover, smooth};
+
+/// sqrt(2 / pi).
+const SQRT_2_OVER_PI: f64 = FRAC_2_SQRT_PI * FRAC_1_SQRT_2;
+
+pub const KIND: Kind = Kind {
+    id: "gelu_tanh",
+    title: "GELU, tanh approximation",
+    params: &[],
+    reference,
+    recover: nothing_to_recover,
+    breakpoints: smooth,
+    fused: &[
+        FusedOp {
+            domain: "",
+            op_type: "Gelu",
+            since: 20,
+            note: "approximate = \"tanh\" (ONNX Gelu schema)",
+        },
+        FusedOp {
+            domain: "com.microsoft",
+            op_type: "FastGelu",
+            since: 1,
+            note: "the tanh approximation, of x + bias when the optional bias input is given \
+                   (from memory)",
+        },
+    ],
+    formula: "f(x) = 0.5 * x * (1 + tanh(sqrt(2/pi) * (x + 0.044715 * x^3)))",
+    source: "Hendrycks & Gimpel 2016, 'Gaussian Error Linear Units (GELUs)', arXiv:1606.08415; \
+             ONNX operator schema Gelu (opset 20, approximate = \"tanh\")",
+    forms: &[
+        "fused: Gelu(x; approximate = \"tanh\") (opset 20)",
+        "primitive: Mul(Mul(x, 0.5), Add(Tanh(Mul(Add(Mul(Pow(x, 3), 0.044715), x), \
+         0.7978846)), 1))",
+        "also seen: x^3 as Mul(Mul(x, x), x)",
+    ],
+    example: "A recipe-step language model (invented) uses the tanh form in every block: \
+              gelu_tanh(1) = 0.8411919906082768.",
+    numeric_notes: "Evaluated as x * sigmoid(2z), z = sqrt(2/pi) * (x + 0.044715 x^3), since \
+                    0.5 * (1 + tanh z) = sigmoid(2z) (an identity); this avoids the \
+                    cancellation of 1 + tanh z for negative x. Differs from exact GELU by at \
+                    most 4.7323552e-4, at x = +-2.69894.",
+    piecewise_linear: false,
+};
+
+fn reference(x: f64, _: &[f64]) -> f64 {
+    let z = SQRT_2_OVER_PI * (x + 0.044715 * x * x * x);
+    x * sigmoid(2.0 * z)
+}

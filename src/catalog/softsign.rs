@@ -1,0 +1,28 @@
+//! softsign: x / (1 + |x|).
+
+use super::{FusedOp, Kind, nothing_to_recover, smooth};
+
+pub const KIND: Kind = Kind {
+    id: "softsign",
+    title: "Softsign",
+    params: &[],
+    reference: |x, _| x / (1.0 + x.abs()),
+    recover: nothing_to_recover,
+    breakpoints: smooth,
+    fused: &[FusedOp {
+        domain: "",
+        op_type: "Softsign",
+        since: 1,
+        note: "versions 1, 22 (from memory)",
+    }],
+    formula: "f(x) = x / (1 + |x|)",
+    source: "ONNX operator schema Softsign (onnx/defs/math/defs.cc); Glorot & Bengio 2010, \
+             'Understanding the difficulty of training deep feedforward neural networks' \
+             (from memory)",
+    forms: &["fused: Softsign(x)", "primitive: Div(x, Add(Abs(x), 1))"],
+    example: "A ski-binding load estimator (invented) squashes a residual with Softsign: \
+              softsign(1) = 0.5, softsign(-3) = -0.75.",
+    numeric_notes: "Rational, no overflow; tends to +-1 only like 1/|x|, so slowly that no \
+                    probe range is a tail for it.",
+    piecewise_linear: false,
+};

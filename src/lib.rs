@@ -4,3 +4,5 @@
 pub mod catalog;
 pub mod cli;
 pub mod onnx;
+pub mod report;
+pub mod scan;

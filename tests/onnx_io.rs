@@ -402,10 +402,10 @@ mod mutation {
                 bytes.truncate(cut.index(bytes.len()));
             }
             let r = std::panic::catch_unwind(|| {
-                if let Ok(m) = Model::from_bytes(bytes.into(), PathBuf::from("m.onnx"), root()) {
-                    if let Ok(i) = ModelIndex::build(&m) {
-                        let _ = Summary::of(&i).map(|s| s.render());
-                    }
+                if let Ok(m) = Model::from_bytes(bytes.into(), PathBuf::from("m.onnx"), root())
+                    && let Ok(i) = ModelIndex::build(&m)
+                {
+                    let _ = Summary::of(&i).map(|s| s.render());
                 }
             });
             prop_assert!(r.is_ok());

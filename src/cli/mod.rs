@@ -3,8 +3,10 @@
 //! Exit codes: 0 success; 1 a budget was exceeded or a site could not be served; 2 an error
 //! (bad input, unreadable model, invalid options).
 
+mod catalog;
 mod info;
 mod output;
+mod scan;
 
 use std::process::ExitCode;
 
@@ -36,6 +38,8 @@ struct Cli {
 #[derive(Debug, Subcommand)]
 enum Command {
     Info(info::Args),
+    Scan(scan::Args),
+    Catalog(catalog::Args),
 }
 
 /// Runs the command line and maps the outcome to an exit code; errors print as one line.
@@ -75,6 +79,8 @@ pub fn main() -> ExitCode {
 fn run(cli: Cli) -> Result<ExitCode> {
     match cli.command {
         Command::Info(args) => info::run(args),
+        Command::Scan(args) => scan::run(args),
+        Command::Catalog(args) => catalog::run(args),
     }
 }
 

@@ -131,6 +131,18 @@ impl<'m> ModelIndex<'m> {
                     let v = self.constant_depth(g, node.input.first()?, depth + 1)?;
                     cast_value(node, v, self, g, depth)
                 }
+                ("" | "ai.onnx", "Reshape" | "Unsqueeze" | "Squeeze" | "Flatten") => {
+                    let v = self.constant_depth(g, node.input.first()?, depth + 1)?;
+                    let arg = |i: usize| {
+                        node.input
+                            .get(i)
+                            .filter(|s| !s.is_empty())
+                            .and_then(|s| self.constant_depth(g, s, depth + 1))
+                    };
+                    let dims = reshaped_dims(node, &v.dims, arg(1).map(|a| a.data))?;
+                    (dims.iter().product::<usize>() == v.data.len())
+                        .then_some(TensorValue { dims, ..v })
+                }
                 _ => None,
             };
         }
@@ -535,8 +547,10 @@ fn validate_tensor(t: &TensorProto, model: &Model) -> Result<()> {
         }
         return Ok(());
     }
-    if let (Some(raw), Some(size)) = (&t.raw_data, tensor::element_size(dt)) {
-        if raw.len() as u64 != n as u64 * size as u64 {
+    if let (Some(raw), Some(size)) = (&t.raw_data, tensor::element_size(dt))
+        && raw.len() as u64 != n as u64 * size as u64
+    {
+        {
             bail!(
                 "tensor '{name}': raw_data length {} disagrees with its shape {:?} ({n} elements of {size} bytes)",
                 raw.len(),
@@ -632,4 +646,76 @@ fn element_type_of(
     index
         .constant_depth(g, tensor, depth + 1)
         .map(|v| v.data_type)
+}
+
+/// The shape a shape-only op (Reshape, Unsqueeze, Squeeze, Flatten) gives a constant of shape
+/// `dims`; `arg` is the op's second input when it is constant (shape or axes from opset 13).
+fn reshaped_dims(node: &NodeProto, dims: &[usize], arg: Option<Vec<f64>>) -> Option<Vec<usize>> {
+    let n: usize = dims.iter().product();
+    let axes = || -> Option<Vec<i64>> {
+        match &arg {
+            Some(a) => Some(a.iter().map(|&v| v as i64).collect()),
+            None => super::attrs::get(node, "axes").map(|a| a.ints.clone()),
+        }
+    };
+    match node.op_type() {
+        "Reshape" => {
+            let shape = arg?;
+            let mut out: Vec<i64> = shape.iter().map(|&v| v as i64).collect();
+            for (i, d) in out.iter_mut().enumerate() {
+                if *d == 0 {
+                    *d = *dims.get(i)? as i64;
+                }
+            }
+            let known: i64 = out.iter().filter(|&&d| d != -1).product();
+            if out.iter().filter(|&&d| d == -1).count() == 1 && known > 0 {
+                let inferred = n as i64 / known;
+                out.iter_mut()
+                    .filter(|d| **d == -1)
+                    .for_each(|d| *d = inferred);
+            }
+            out.iter().map(|&d| usize::try_from(d).ok()).collect()
+        }
+        "Unsqueeze" => {
+            let rank = dims.len() + axes()?.len();
+            let mut axes: Vec<usize> = axes()?
+                .iter()
+                .map(|&a| usize::try_from(if a < 0 { a + rank as i64 } else { a }).ok())
+                .collect::<Option<_>>()?;
+            axes.sort_unstable();
+            let mut out = dims.to_vec();
+            for a in axes {
+                (a <= out.len()).then(|| out.insert(a, 1))?;
+            }
+            Some(out)
+        }
+        "Squeeze" => match axes() {
+            None => Some(dims.iter().copied().filter(|&d| d != 1).collect()),
+            Some(axes) => {
+                let rank = dims.len() as i64;
+                let drop: Vec<usize> = axes
+                    .iter()
+                    .map(|&a| usize::try_from(if a < 0 { a + rank } else { a }).ok())
+                    .collect::<Option<_>>()?;
+                Some(
+                    dims.iter()
+                        .enumerate()
+                        .filter(|(i, _)| !drop.contains(i))
+                        .map(|(_, &d)| d)
+                        .collect(),
+                )
+            }
+        },
+        _ => {
+            let axis = super::attrs::int(node, "axis").unwrap_or(1);
+            let axis = usize::try_from(if axis < 0 {
+                axis + dims.len() as i64
+            } else {
+                axis
+            })
+            .ok()?;
+            let outer: usize = dims.get(..axis)?.iter().product();
+            Some(vec![outer, n / outer.max(1)])
+        }
+    }
 }

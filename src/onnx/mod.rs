@@ -1,6 +1,7 @@
 //! ONNX models as files: the generated protobuf types, lossless load and save, external data,
 //! tensor values and the graph index that later stages query.
 
+pub mod attrs;
 pub mod builder;
 pub mod external;
 pub mod index;

@@ -1,0 +1,4 @@
+//! Rendering results for people: terminal tables (JSON comes straight from the serde types).
+
+pub mod scan_table;
+pub mod table;

@@ -1,0 +1,108 @@
+//! The terminal form of a scan: one row per site, then a summary by kind.
+
+use crate::scan::{ParamValue, ScanReport, Site};
+
+use super::table;
+
+/// Renders the site table and the summary.
+pub fn render(report: &ScanReport) -> String {
+    let opsets: Vec<String> = report
+        .opsets
+        .iter()
+        .map(|(d, v)| format!("{} {v}", if d.is_empty() { "ai.onnx" } else { d }))
+        .collect();
+    let mut out = format!(
+        "model {}  (opsets: {})\n\n",
+        report.model,
+        opsets.join(", ")
+    );
+    if report.sites.is_empty() {
+        out.push_str("no activation sites found\n");
+        return out;
+    }
+    let rows: Vec<Vec<String>> = report.sites.iter().map(row).collect();
+    out.push_str(&table::render(
+        &[
+            "site",
+            "kind",
+            "params",
+            "form",
+            "ops",
+            "input -> output",
+            "graph",
+            "notes",
+        ],
+        &rows,
+    ));
+    let counts: Vec<String> = report
+        .counts
+        .iter()
+        .map(|(k, n)| format!("{k} {n}"))
+        .collect();
+    out.push_str(&format!(
+        "\n{} site{}: {}\n",
+        report.sites.len(),
+        if report.sites.len() == 1 { "" } else { "s" },
+        counts.join(", ")
+    ));
+    out
+}
+
+fn row(s: &Site) -> Vec<String> {
+    let params = if s.params.is_empty() {
+        "-".to_string()
+    } else {
+        s.params
+            .iter()
+            .map(|(k, v)| format!("{k}={}", short(v)))
+            .collect::<Vec<_>>()
+            .join(" ")
+    };
+    let form = match (&s.domain, s.form) {
+        (Some(d), _) => format!("fused ({d})"),
+        (None, f) => format!("{f:?}").to_lowercase(),
+    };
+    let mut notes = s.notes.join("; ");
+    if !s.rewritable {
+        notes = if notes.is_empty() {
+            "not rewritable".into()
+        } else {
+            format!("not rewritable: {notes}")
+        };
+    }
+    vec![
+        s.id.clone(),
+        s.kind.clone(),
+        params,
+        form,
+        s.ops.join(" "),
+        format!("{} -> {}", s.input, s.output),
+        s.graph.clone(),
+        notes,
+    ]
+}
+
+/// A parameter for the table: 6 significant digits, per-channel values summarised.
+fn short(v: &ParamValue) -> String {
+    let num = |x: f64| format!("{}", (x * 1e6).round() / 1e6);
+    let g = |x: f64| {
+        if x.is_infinite() {
+            if x > 0.0 { "inf".into() } else { "-inf".into() }
+        } else if x != 0.0 && (x.abs() < 1e-3 || x.abs() >= 1e6) {
+            format!("{x:.4e}")
+        } else {
+            num(x)
+        }
+    };
+    match v {
+        ParamValue::Scalar(x) => g(*x),
+        ParamValue::PerChannel(xs) => {
+            let (lo, hi) = xs
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
+                    (a.min(x), b.max(x))
+                });
+            format!("[{} per channel, {}..{}]", xs.len(), g(lo), g(hi))
+        }
+    }
+}

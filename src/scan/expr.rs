@@ -1,0 +1,241 @@
+//! A chain of element-wise nodes compiled into a scalar function of its one input, evaluated in
+//! f64 with the model's own (usually float32-rounded) constants. Constants of more than one element
+//! make the function per-channel: channel `c` reads element `c` of each of them.
+
+use crate::catalog::{self, Kind};
+use crate::onnx::attrs;
+use crate::onnx::proto::NodeProto;
+
+/// Longest chain the scanner compiles (the longest spelled-out activations take about 15 nodes).
+pub const MAX_CHAIN: usize = 24;
+
+/// Where a step reads an operand.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Operand {
+    /// The chain's input.
+    X,
+    /// The result of an earlier step.
+    Step(usize),
+    /// A constant, by index into [`Expr::consts`].
+    Const(usize),
+    /// An optional operand that is absent.
+    None,
+}
+
+/// What a step computes.
+#[derive(Debug, Clone)]
+pub enum Op {
+    Add,
+    Sub,
+    Mul,
+    Div,
+    Pow,
+    Exp,
+    Log,
+    Sqrt,
+    Neg,
+    Abs,
+    Reciprocal,
+    Erf,
+    Max,
+    Min,
+    Sum,
+    Where,
+    Greater,
+    Less,
+    GreaterOrEqual,
+    LessOrEqual,
+    Equal,
+    /// Identity, Cast to a float type, CastLike: the value passes through.
+    Pass,
+    /// Cast to an integer type.
+    Truncate,
+    /// Clip with bounds from inputs 1 and 2 (absent = unbounded).
+    Clip,
+    /// Clip with attribute bounds (opset < 11).
+    ClipAttr(f64, f64),
+    /// PRelu(x, slope).
+    PRelu,
+    /// A fused activation op, evaluated by its catalogue reference.
+    Kind(&'static Kind, Vec<f64>),
+}
+
+#[derive(Debug, Clone)]
+pub struct Step {
+    pub op: Op,
+    pub args: Vec<Operand>,
+}
+
+/// A constant operand.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Const {
+    pub values: Vec<f64>,
+    pub dims: Vec<usize>,
+}
+
+/// The compiled chain.
+#[derive(Debug, Clone)]
+pub struct Expr {
+    pub steps: Vec<Step>,
+    pub consts: Vec<Const>,
+    /// 1 for a scalar function, else the element count shared by every multi-element constant.
+    pub channels: usize,
+    /// Shape of the multi-element constants, when there are any.
+    pub channel_shape: Option<Vec<usize>>,
+}
+
+impl Expr {
+    /// Evaluates the chain at `x` for channel `c`.
+    pub fn eval(&self, x: f64, c: usize) -> f64 {
+        let mut vals = [0.0f64; MAX_CHAIN];
+        for (i, s) in self.steps.iter().enumerate() {
+            let a = |k: usize| match s.args.get(k).copied().unwrap_or(Operand::None) {
+                Operand::X => Some(x),
+                Operand::Step(j) => Some(vals[j]),
+                Operand::Const(j) => {
+                    let v = &self.consts[j].values;
+                    Some(if v.len() == 1 { v[0] } else { v[c] })
+                }
+                Operand::None => None,
+            };
+            let a0 = a(0).unwrap_or(f64::NAN);
+            let a1 = || a(1).unwrap_or(f64::NAN);
+            let b = |t: bool| if t { 1.0 } else { 0.0 };
+            vals[i] = match &s.op {
+                Op::Add => a0 + a1(),
+                Op::Sub => a0 - a1(),
+                Op::Mul => a0 * a1(),
+                Op::Div => a0 / a1(),
+                Op::Pow => a0.powf(a1()),
+                Op::Exp => a0.exp(),
+                Op::Log => a0.ln(),
+                Op::Sqrt => a0.sqrt(),
+                Op::Neg => -a0,
+                Op::Abs => a0.abs(),
+                Op::Reciprocal => 1.0 / a0,
+                Op::Erf => libm::erf(a0),
+                Op::Max => (0..s.args.len())
+                    .filter_map(a)
+                    .fold(f64::NEG_INFINITY, f64::max),
+                Op::Min => (0..s.args.len())
+                    .filter_map(a)
+                    .fold(f64::INFINITY, f64::min),
+                Op::Sum => (0..s.args.len()).filter_map(a).sum(),
+                Op::Where => {
+                    if a0 != 0.0 {
+                        a1()
+                    } else {
+                        a(2).unwrap_or(f64::NAN)
+                    }
+                }
+                Op::Greater => b(a0 > a1()),
+                Op::Less => b(a0 < a1()),
+                Op::GreaterOrEqual => b(a0 >= a1()),
+                Op::LessOrEqual => b(a0 <= a1()),
+                Op::Equal => b(a0 == a1()),
+                Op::Pass => a0,
+                Op::Truncate => a0.trunc(),
+                Op::Clip => {
+                    let lo = a(1).unwrap_or(f64::NEG_INFINITY);
+                    let hi = a(2).unwrap_or(f64::INFINITY);
+                    // ONNX Clip-13: when min > max every value becomes max.
+                    if lo > hi { hi } else { a0.max(lo).min(hi) }
+                }
+                Op::ClipAttr(lo, hi) => a0.max(*lo).min(*hi),
+                Op::PRelu => {
+                    if a0 < 0.0 {
+                        a0 * a1()
+                    } else {
+                        a0
+                    }
+                }
+                Op::Kind(k, p) => k.eval(a0, p),
+            };
+        }
+        self.steps.last().map_or(x, |_| vals[self.steps.len() - 1])
+    }
+
+    /// A key equal for chains that compute the same function (same ops, wiring and constants),
+    /// so identification runs once per distinct spelling.
+    pub fn key(&self) -> String {
+        let mut k = String::new();
+        for s in &self.steps {
+            k.push_str(&format!("{:?}{:?};", s.op, s.args));
+        }
+        for c in &self.consts {
+            for v in &c.values {
+                k.push_str(&format!("{:x},", v.to_bits()));
+            }
+            k.push('|');
+        }
+        k
+    }
+}
+
+/// The step for `node`, or `None` when the op is not element-wise (or not understood).
+/// `opset` is the default-domain opset.
+pub fn op_of(node: &NodeProto, opset: i64) -> Option<Op> {
+    if !matches!(node.domain(), "" | "ai.onnx") {
+        return None;
+    }
+    let f = |name: &str, default: f64| attrs::float(node, name).unwrap_or(default);
+    let kind = |id: &str| catalog::get(id).expect("catalogue kind");
+    Some(match node.op_type() {
+        "Add" => Op::Add,
+        "Sub" => Op::Sub,
+        "Mul" => Op::Mul,
+        "Div" => Op::Div,
+        "Pow" => Op::Pow,
+        "Exp" => Op::Exp,
+        "Log" => Op::Log,
+        "Sqrt" => Op::Sqrt,
+        "Neg" => Op::Neg,
+        "Abs" => Op::Abs,
+        "Reciprocal" => Op::Reciprocal,
+        "Erf" => Op::Erf,
+        "Max" => Op::Max,
+        "Min" => Op::Min,
+        "Sum" => Op::Sum,
+        "Where" => Op::Where,
+        "Greater" => Op::Greater,
+        "Less" => Op::Less,
+        "GreaterOrEqual" => Op::GreaterOrEqual,
+        "LessOrEqual" => Op::LessOrEqual,
+        "Equal" => Op::Equal,
+        "Identity" | "CastLike" => Op::Pass,
+        "Cast" => {
+            use crate::onnx::proto::tensor_proto::DataType::*;
+            let to = attrs::int(node, "to")?;
+            match crate::onnx::proto::tensor_proto::DataType::try_from(to as i32).ok()? {
+                Float | Double | Float16 | Bfloat16 => Op::Pass,
+                Bool | String => return None,
+                _ => Op::Truncate,
+            }
+        }
+        "Clip" if opset < 11 => Op::ClipAttr(f("min", f32::MIN as f64), f("max", f32::MAX as f64)),
+        "Clip" => Op::Clip,
+        "PRelu" => Op::PRelu,
+        "Swish" => Op::Kind(kind("swish"), vec![f("alpha", 1.0)]),
+        _ => {
+            let k = super::fused::attribute_kind(node)?;
+            Op::Kind(k, super::fused::attribute_params(node, k))
+        }
+    })
+}
+
+/// True for ops whose result is linear in their one dynamic operand; a chain made only of these
+/// is never an activation.
+pub fn is_linear(op: &Op) -> bool {
+    matches!(
+        op,
+        Op::Add | Op::Sub | Op::Mul | Op::Div | Op::Neg | Op::Pass | Op::Sum
+    )
+}
+
+/// Input positions that carry data (CastLike's second input only gives a type).
+pub fn data_inputs(node: &NodeProto) -> usize {
+    match node.op_type() {
+        "CastLike" => 1,
+        _ => node.input.len(),
+    }
+}

@@ -1,0 +1,478 @@
+//! The scanner: every activation site of a model, fused or decomposed, with its parameters.
+//!
+//! Decomposed sites are found numerically, not by pattern lists. For every element-wise node
+//! output `t` (latest first), the chain finder grows the set of nodes `t` depends on, always
+//! expanding the frontier tensor produced last; each time the frontier shrinks to one tensor `u`,
+//! the nodes between `u` and `t` are a chain with a single input. The largest such chain that the
+//! catalogue identifies is the site (so a folded batch-norm Mul/Add before a swish stays outside
+//! it); its nodes are then taken. A single node of a fused op is a fused site with the node's
+//! attributes.
+
+mod expr;
+mod fused;
+pub mod site;
+
+use std::collections::{BTreeMap, HashMap, HashSet};
+
+use serde::Serialize;
+
+use crate::catalog::{self, Kind};
+use crate::onnx::index::{GraphIndex, ModelIndex};
+use expr::{Const, Expr, MAX_CHAIN, Op, Operand, Step};
+pub use site::{Form, ParamValue, Site};
+
+/// Quick probes tried before the catalogue's full probe set: they reject most wrong kinds cheaply.
+const QUICK_PROBES: &[f64] = &[
+    -7.5, -3.1, -1.7, -0.6, -0.15, 0.2, 0.55, 1.3, 2.4, 3.9, 6.6, 11.0,
+];
+
+/// Per-channel parameter sets larger than this are not identified (one identification per
+/// channel).
+const MAX_CHANNELS: usize = 4096;
+
+/// What `scan` reports for a model.
+#[derive(Debug, Serialize)]
+pub struct ScanReport {
+    pub model: String,
+    pub opsets: BTreeMap<String, i64>,
+    pub sites: Vec<Site>,
+    pub counts: BTreeMap<String, usize>,
+}
+
+/// Scans every graph of the model (main, subgraphs, functions).
+pub fn scan(index: &ModelIndex) -> ScanReport {
+    let mut cache = HashMap::new();
+    let mut sites = Vec::new();
+    for g in 0..index.graphs.len() {
+        sites.extend(GraphScan::new(index, g, &mut cache).run());
+    }
+    for (i, s) in sites.iter_mut().enumerate() {
+        s.id = format!("s{}", i + 1);
+    }
+    let mut counts = BTreeMap::new();
+    for s in &sites {
+        *counts.entry(s.kind.clone()).or_insert(0) += 1;
+    }
+    ScanReport {
+        model: index.model.path().display().to_string(),
+        opsets: index.opsets(),
+        sites,
+        counts,
+    }
+}
+
+/// Identification results by chain key, shared across graphs.
+type Cache = HashMap<String, Option<Identified>>;
+
+#[derive(Debug, Clone)]
+struct Identified {
+    kind: &'static Kind,
+    params: Vec<ParamValue>,
+}
+
+struct GraphScan<'a, 'm> {
+    index: &'a ModelIndex<'m>,
+    g: usize,
+    graph: &'a GraphIndex<'m>,
+    /// Position of each node in the topological order.
+    pos: Vec<usize>,
+    /// Constant values by tensor name (None: not a constant).
+    consts: HashMap<String, Option<Const>>,
+    covered: Vec<bool>,
+    cache: &'a mut Cache,
+    opset: i64,
+}
+
+impl<'a, 'm> GraphScan<'a, 'm> {
+    fn new(index: &'a ModelIndex<'m>, g: usize, cache: &'a mut Cache) -> Self {
+        let graph = &index.graphs[g];
+        let mut pos = vec![0; graph.nodes.len()];
+        for (p, &n) in graph.order().iter().enumerate() {
+            pos[n] = p;
+        }
+        GraphScan {
+            index,
+            g,
+            graph,
+            pos,
+            consts: HashMap::new(),
+            covered: vec![false; graph.nodes.len()],
+            cache,
+            opset: graph.opset("").unwrap_or(1),
+        }
+    }
+
+    fn run(mut self) -> Vec<Site> {
+        let mut sites = Vec::new();
+        let order: Vec<usize> = self.graph.order().to_vec();
+        for &n in order.iter().rev() {
+            if self.covered[n] {
+                continue;
+            }
+            if let Some(site) = self.site_ending_at(n) {
+                for &i in &site.node_indices {
+                    self.covered[i] = true;
+                }
+                sites.push(site);
+            }
+        }
+        sites.sort_by_key(|s| self.pos[*s.node_indices.last().expect("non-empty site")]);
+        sites
+    }
+
+    fn constant(&mut self, name: &str) -> Option<Const> {
+        if let Some(c) = self.consts.get(name) {
+            return c.clone();
+        }
+        let v = self.index.constant(self.g, name).map(|t| Const {
+            values: t.data,
+            dims: t.dims,
+        });
+        self.consts.insert(name.to_string(), v.clone());
+        v
+    }
+
+    /// Inputs of node `n` that carry computed (non-constant) data.
+    fn dynamic_inputs(&mut self, n: usize) -> Vec<String> {
+        let node = &self.graph.nodes[n];
+        let k = expr::data_inputs(node);
+        let names: Vec<String> = node
+            .input
+            .iter()
+            .take(k)
+            .filter(|s| !s.is_empty())
+            .cloned()
+            .collect();
+        let mut out = Vec::new();
+        for name in names {
+            if self.constant(&name).is_none() && !out.contains(&name) {
+                out.push(name);
+            }
+        }
+        out
+    }
+
+    /// The site whose output is node `n`'s first output, if any.
+    fn site_ending_at(&mut self, n: usize) -> Option<Site> {
+        let node = &self.graph.nodes[n];
+        if node.output.len() != 1 {
+            return None;
+        }
+        let elementwise = expr::op_of(node, self.opset).is_some();
+        if elementwise {
+            let chains = self.chains(n);
+            for (input, nodes) in chains.iter().rev() {
+                if nodes.len() == 1 && fused::is_fused_op(&self.graph.nodes[n]) {
+                    break;
+                }
+                if let Some(site) = self.decomposed(input, nodes) {
+                    return Some(site);
+                }
+            }
+        }
+        if fused::is_fused_op(node) {
+            return self.fused(n);
+        }
+        None
+    }
+
+    /// Single-input chains ending at node `n`, smallest first: (input tensor, nodes in
+    /// topological order).
+    fn chains(&mut self, n: usize) -> Vec<(String, Vec<usize>)> {
+        let mut out = Vec::new();
+        let mut set: Vec<usize> = vec![n];
+        let mut frontier: Vec<String> = self.dynamic_inputs(n);
+        while !frontier.is_empty() && set.len() <= MAX_CHAIN {
+            if frontier.len() == 1 {
+                let mut nodes = set.clone();
+                nodes.sort_by_key(|&i| self.pos[i]);
+                out.push((frontier[0].clone(), nodes));
+            }
+            // Expand the frontier tensor produced last.
+            let (k, p) = match frontier
+                .iter()
+                .enumerate()
+                .map(|(k, t)| (k, self.graph.producer(t)))
+                .max_by_key(|(_, p)| p.map(|p| self.pos[p] as i64).unwrap_or(-1))
+            {
+                Some((k, Some(p))) => (k, p),
+                _ => break,
+            };
+            let pnode = &self.graph.nodes[p];
+            if self.covered[p]
+                || pnode.output.len() != 1
+                || expr::op_of(pnode, self.opset).is_none()
+            {
+                break;
+            }
+            frontier.swap_remove(k);
+            set.push(p);
+            for t in self.dynamic_inputs(p) {
+                if !frontier.contains(&t) {
+                    frontier.push(t);
+                }
+            }
+        }
+        out
+    }
+
+    /// Compiles and identifies a chain; the site when the catalogue recognises it.
+    fn decomposed(&mut self, input: &str, nodes: &[usize]) -> Option<Site> {
+        let expr = self.compile(input, nodes)?;
+        let nonlinear = expr.steps.iter().any(|s| {
+            !expr::is_linear(&s.op)
+                || (matches!(s.op, Op::Mul | Op::Div | Op::Pow)
+                    && s.args
+                        .iter()
+                        .filter(|a| matches!(a, Operand::X | Operand::Step(_)))
+                        .count()
+                        > 1)
+        });
+        if !nonlinear || expr.channels > MAX_CHANNELS {
+            return None;
+        }
+        let key = expr.key();
+        let found = match self.cache.get(&key) {
+            Some(r) => r.clone(),
+            None => {
+                let r = identify(&expr);
+                self.cache.insert(key, r.clone());
+                r
+            }
+        }?;
+        let mut site = self.site(nodes, input, found.kind, found.params, Form::Decomposed);
+        site.param_shape = expr.channel_shape.clone().filter(|_| {
+            site.params
+                .values()
+                .any(|p| matches!(p, ParamValue::PerChannel(_)))
+        });
+        Some(site)
+    }
+
+    fn compile(&mut self, input: &str, nodes: &[usize]) -> Option<Expr> {
+        let mut steps = Vec::with_capacity(nodes.len());
+        let mut consts: Vec<Const> = Vec::new();
+        let mut const_names: HashMap<String, usize> = HashMap::new();
+        let mut step_of: HashMap<&str, usize> = HashMap::new();
+        let graph = self.graph;
+        for (i, &n) in nodes.iter().enumerate() {
+            let node = &graph.nodes[n];
+            let op = expr::op_of(node, self.opset)?;
+            let mut args = Vec::new();
+            for name in node.input.iter().take(expr::data_inputs(node)) {
+                let a = if name.is_empty() {
+                    Operand::None
+                } else if name == input {
+                    Operand::X
+                } else if let Some(&s) = step_of.get(name.as_str()) {
+                    Operand::Step(s)
+                } else if let Some(&c) = const_names.get(name) {
+                    Operand::Const(c)
+                } else {
+                    let c = self.constant(name)?;
+                    consts.push(c);
+                    const_names.insert(name.clone(), consts.len() - 1);
+                    Operand::Const(consts.len() - 1)
+                };
+                args.push(a);
+            }
+            step_of.insert(node.output[0].as_str(), i);
+            steps.push(Step { op, args });
+        }
+        let multi: Vec<&Const> = consts.iter().filter(|c| c.values.len() > 1).collect();
+        let channels = multi.first().map_or(1, |c| c.values.len());
+        if multi
+            .iter()
+            .any(|c| c.values.len() != channels || squeeze(&c.dims) != squeeze(&multi[0].dims))
+        {
+            return None;
+        }
+        if consts.iter().any(|c| c.values.is_empty()) {
+            return None;
+        }
+        Some(Expr {
+            steps,
+            channel_shape: multi.first().map(|c| c.dims.clone()),
+            consts,
+            channels,
+        })
+    }
+
+    fn fused(&mut self, n: usize) -> Option<Site> {
+        let node = &self.graph.nodes[n];
+        let opset = self.graph.opset(node.domain()).unwrap_or(1);
+        let inputs = node.input.clone();
+        let mut values: Vec<Option<Const>> = Vec::new();
+        for name in &inputs {
+            values.push(if name.is_empty() {
+                None
+            } else {
+                self.constant(name)
+            });
+        }
+        let constant = |i: usize| {
+            values.get(i).cloned().flatten().map(|c| fused::ConstInput {
+                values: c.values,
+                dims: c.dims,
+            })
+        };
+        let f = fused::classify(node, opset, &constant)?;
+        let input = node.input.first().cloned().unwrap_or_default();
+        let mut site = self.site(&[n], &input, f.kind, f.params, Form::Fused);
+        site.param_shape = f.param_shape;
+        site.notes.extend(f.notes);
+        site.rewritable &= f.rewritable;
+        if !matches!(node.domain(), "" | "ai.onnx") {
+            site.domain = Some(node.domain().to_string());
+        }
+        Some(site)
+    }
+
+    /// Builds the site record and its rewrite limits.
+    fn site(
+        &mut self,
+        nodes: &[usize],
+        input: &str,
+        kind: &'static Kind,
+        params: Vec<ParamValue>,
+        form: Form,
+    ) -> Site {
+        let graph = self.graph;
+        let last = *nodes.last().expect("non-empty chain");
+        let output = graph.nodes[last].output[0].clone();
+        let inside: HashSet<usize> = nodes.iter().copied().collect();
+        let mut notes = Vec::new();
+        let mut rewritable = true;
+        for &n in nodes {
+            for t in &graph.nodes[n].output {
+                if *t == output {
+                    continue;
+                }
+                if graph.is_output(t) {
+                    notes.push(format!("intermediate '{t}' is a graph output"));
+                    rewritable = false;
+                }
+                for &c in graph.consumers(t) {
+                    if !inside.contains(&c) {
+                        notes.push(format!(
+                            "intermediate '{t}' is also read by '{}'",
+                            graph.label(c)
+                        ));
+                        rewritable = false;
+                    }
+                }
+            }
+        }
+        if graph.is_output(&output) {
+            notes.push("its output is a graph output (the rewrite keeps the name)".into());
+        }
+        let mut constants: Vec<String> = Vec::new();
+        for &n in nodes {
+            for (k, name) in graph.nodes[n].input.iter().enumerate() {
+                if name.is_empty() || name == input || k >= expr::data_inputs(&graph.nodes[n]) {
+                    continue;
+                }
+                let produced_inside = graph.producer(name).is_some_and(|p| inside.contains(&p));
+                if !produced_inside && !constants.contains(name) && self.constant(name).is_some() {
+                    constants.push(name.clone());
+                }
+            }
+        }
+        Site {
+            id: String::new(),
+            kind: kind.id.to_string(),
+            params: kind
+                .params
+                .iter()
+                .zip(params)
+                .map(|(p, v)| (p.name.to_string(), v))
+                .collect(),
+            param_shape: None,
+            form,
+            domain: None,
+            ops: nodes
+                .iter()
+                .map(|&n| graph.nodes[n].op_type().to_string())
+                .collect(),
+            nodes: nodes.iter().map(|&n| graph.label(n)).collect(),
+            constants,
+            input: input.to_string(),
+            output,
+            graph: graph.path.clone(),
+            rewritable,
+            notes,
+            graph_index: self.g,
+            node_indices: nodes.to_vec(),
+        }
+    }
+}
+
+/// Dims without their 1s, so `[1, C, 1, 1]` and `[C, 1, 1]` compare equal.
+fn squeeze(dims: &[usize]) -> Vec<usize> {
+    dims.iter().copied().filter(|&d| d != 1).collect()
+}
+
+/// Identifies a compiled chain, per channel when its constants are per channel.
+fn identify(expr: &Expr) -> Option<Identified> {
+    let per_channel: Vec<(&'static Kind, Vec<f64>)> = (0..expr.channels)
+        .map(|c| identify_channel(&|x| expr.eval(x, c), None))
+        .collect::<Option<_>>()?;
+    let first = per_channel[0].0;
+    let chosen: Vec<Vec<f64>> = if per_channel.iter().all(|(k, _)| k.id == first.id) {
+        per_channel.into_iter().map(|(_, p)| p).collect()
+    } else {
+        // Channels identified as different kinds (say silu where b = 1, swish elsewhere): take
+        // the first kind with per-channel parameters that fits every channel.
+        let mut kinds: Vec<&'static Kind> = per_channel.iter().map(|(k, _)| *k).collect();
+        kinds.dedup_by_key(|k| k.id);
+        let general = kinds
+            .into_iter()
+            .filter(|k| k.params.iter().any(|p| p.per_channel))
+            .find_map(|k| {
+                (0..expr.channels)
+                    .map(|c| identify_channel(&|x| expr.eval(x, c), Some(k)).map(|(_, p)| p))
+                    .collect::<Option<Vec<_>>>()
+                    .map(|ps| (k, ps))
+            })?;
+        return Some(Identified {
+            kind: general.0,
+            params: merge_channels(general.0, general.1),
+        });
+    };
+    Some(Identified {
+        kind: first,
+        params: merge_channels(first, chosen),
+    })
+}
+
+/// Parameter values across channels: a scalar when all channels agree.
+fn merge_channels(kind: &Kind, per_channel: Vec<Vec<f64>>) -> Vec<ParamValue> {
+    (0..kind.params.len())
+        .map(|i| {
+            let vals: Vec<f64> = per_channel.iter().map(|p| p[i]).collect();
+            if vals.iter().all(|v| *v == vals[0]) {
+                ParamValue::Scalar(vals[0])
+            } else {
+                ParamValue::PerChannel(vals)
+            }
+        })
+        .collect()
+}
+
+/// The first catalogue kind (or `only`) that fits `f`: quick probes first, then the catalogue's
+/// full probe set.
+fn identify_channel(
+    f: &dyn Fn(f64) -> f64,
+    only: Option<&'static Kind>,
+) -> Option<(&'static Kind, Vec<f64>)> {
+    let candidates: Vec<&'static Kind> = match only {
+        Some(k) => vec![k],
+        None => catalog::all().to_vec(),
+    };
+    candidates.into_iter().find_map(|kind| {
+        let params = (kind.recover)(f)?;
+        (catalog::matches(kind, f, &params, QUICK_PROBES)
+            && catalog::matches(kind, f, &params, catalog::probe_points()))
+        .then_some((kind, params))
+    })
+}

@@ -1,2 +1,4 @@
 //! actswap: find activation functions in ONNX models, convert them to forms a target runtime
 //! accepts, and measure what the swap costs in drift and latency.
+
+pub mod run;

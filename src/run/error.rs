@@ -6,8 +6,16 @@ use std::path::PathBuf;
 #[derive(Debug, thiserror::Error)]
 pub enum RunError {
     /// The model bytes do not decode as an ONNX ModelProto.
-    #[error("not a readable ONNX model: {0}")]
+    #[error("not an ONNX model: {0}")]
     Decode(String),
+    /// Nodes read tensors that nothing defines.
+    #[error("undefined tensors (read by a node, defined by no input, initializer or node): {}", .0.join(", "))]
+    UndefinedTensors(Vec<String>),
+    /// An initializer lives in an external file but no model folder was given.
+    #[error(
+        "initializer '{tensor}' is stored in the external file '{location}'; the model's folder is needed to read it"
+    )]
+    ExternalDataWithoutFolder { tensor: String, location: String },
     /// The model has ops tract has no implementation for.
     #[error("tract cannot run {}", .0.join(", "))]
     UnsupportedOps(Vec<String>),

@@ -4,7 +4,8 @@ use std::collections::HashMap;
 use std::path::Path;
 
 use prost::Message;
-use tract_onnx::pb::ModelProto;
+use tract_onnx::pb::tensor_proto::DataLocation;
+use tract_onnx::pb::{GraphProto, ModelProto};
 use tract_onnx::prelude::{InferenceModel, OutletId};
 use tract_onnx::tract_core::ops::unimpl::UnimplementedOp;
 
@@ -50,13 +51,13 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
                 .ok_or_else(|| RunError::file(d, "folder name is not valid UTF-8"))
         })
         .transpose()?;
+    if model_dir.is_none() {
+        refuse_external_data(graph)?;
+    }
     let onnx = framework::corrected_onnx();
     let parsed = guarded("load the model", || onnx.parse(&proto, dir))?;
     if !parsed.unresolved_inputs.is_empty() {
-        return Err(RunError::Decode(format!(
-            "tensors used but never defined: {}",
-            parsed.unresolved_inputs.join(", ")
-        )));
+        return Err(RunError::UndefinedTensors(parsed.unresolved_inputs));
     }
     let unsupported: Vec<String> = parsed
         .model
@@ -79,6 +80,26 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
         outputs,
         node_outputs,
     })
+}
+
+/// Refuses a graph whose initializers live in external files, which need the model's folder.
+fn refuse_external_data(graph: &GraphProto) -> Result<(), RunError> {
+    let external = graph
+        .initializer
+        .iter()
+        .find(|t| t.data_location == Some(DataLocation::External as i32));
+    match external {
+        Some(t) => Err(RunError::ExternalDataWithoutFolder {
+            tensor: t.name.clone(),
+            location: t
+                .external_data
+                .iter()
+                .find(|e| e.key == "location")
+                .map(|e| e.value.clone())
+                .unwrap_or_default(),
+        }),
+        None => Ok(()),
+    }
 }
 
 impl TractModel {

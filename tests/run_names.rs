@@ -25,6 +25,10 @@ fn node(name: &str, op_type: &str, inputs: &[&str], outputs: &[&str]) -> NodePro
 }
 
 fn value_info(name: &str, dims: &[i64]) -> ValueInfoProto {
+    typed_value_info(name, dims, DataType::Float)
+}
+
+fn typed_value_info(name: &str, dims: &[i64], elem_type: DataType) -> ValueInfoProto {
     let shape = TensorShapeProto {
         dim: dims
             .iter()
@@ -39,7 +43,7 @@ fn value_info(name: &str, dims: &[i64]) -> ValueInfoProto {
         r#type: Some(TypeProto {
             denotation: String::new(),
             value: Some(type_proto::Value::TensorType(type_proto::Tensor {
-                elem_type: DataType::Float as i32,
+                elem_type: elem_type as i32,
                 shape: Some(shape),
             })),
         }),
@@ -134,4 +138,37 @@ fn an_op_tract_lacks_is_named_with_its_node() {
         "{message}"
     );
     assert!(!message.contains('\n'), "one line: {message}");
+}
+
+/// tract 0.23.9 has no float64 Sigmoid kernel (observed: "Sigmoid does not support F64"); the
+/// failure must name the ONNX node, here the second of two nodes named "block".
+#[test]
+fn a_failure_inside_tract_names_the_onnx_node() {
+    let bytes = ModelProto {
+        ir_version: 8,
+        opset_import: vec![OperatorSetIdProto {
+            domain: String::new(),
+            version: 18,
+        }],
+        graph: Some(GraphProto {
+            node: vec![
+                node("block", "Relu", &["x"], &["r"]),
+                node("block", "Sigmoid", &["r"], &["y"]),
+            ],
+            input: vec![typed_value_info("x", &[2, 3], DataType::Double)],
+            output: vec![typed_value_info("y", &[2, 3], DataType::Double)],
+            ..Default::default()
+        }),
+        ..Default::default()
+    }
+    .encode_to_vec();
+    let model = prepare(&bytes, None).expect("loads");
+    let x = tract_ndarray::Array2::<f64>::zeros((2, 3));
+    let error = model
+        .run(&[NamedTensor::new("x", x.into_dyn().into())], &[])
+        .expect_err("no f64 Sigmoid");
+    assert!(
+        matches!(&error, RunError::NodeFailed { node, .. } if node == "Sigmoid (node 'block')"),
+        "{error}"
+    );
 }

@@ -77,6 +77,13 @@ pub enum RunError {
         elements: u128,
         limit: usize,
     },
+    /// tract failed at a stage on a node it names; `node` is that node as the ONNX file has it.
+    #[error("tract failed to {stage} at {node}: {message}")]
+    NodeFailed {
+        stage: &'static str,
+        node: String,
+        message: String,
+    },
     /// A requested output is not a tensor of the model.
     #[error("no tensor named '{0}' in the model")]
     UnknownTensor(String),

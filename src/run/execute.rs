@@ -1,10 +1,12 @@
 //! Typing, optimizing and running a loaded model on concrete inputs.
 
+use std::collections::HashSet;
 use std::sync::Arc;
 
 use tract_onnx::prelude::*;
 
 use super::error::guarded;
+use super::names::NodeOrigins;
 use super::signature::bind;
 use super::{NamedTensor, RunError, TractModel};
 
@@ -15,6 +17,7 @@ pub struct Plan {
     inputs: Vec<super::InputSpec>,
     input_shapes: Vec<Vec<usize>>,
     outputs: Vec<String>,
+    origins: Arc<NodeOrigins>,
 }
 
 impl TractModel {
@@ -34,8 +37,9 @@ impl TractModel {
             guarded("set an input fact", || model.set_input_fact(ix, fact))?;
         }
         let mut outputs = self.outputs.clone();
+        let mut listed: HashSet<String> = outputs.iter().cloned().collect();
         for extra in extra_outputs {
-            if !outputs.contains(extra) {
+            if listed.insert(extra.clone()) {
                 outputs.push(extra.clone());
             }
         }
@@ -49,14 +53,18 @@ impl TractModel {
             })
             .collect::<Result<Vec<_>, _>>()?;
         guarded("select outputs", || model.select_output_outlets(&outlets))?;
-        let typed = guarded("type the model", || model.into_typed())?;
-        let optimized = guarded("optimize the model", || typed.into_optimized())?;
-        let runnable = guarded("plan the model", || optimized.into_runnable())?;
+        let attribute = |e| self.origins.attribute(e);
+        let typed = guarded("type the model", || model.into_typed()).map_err(attribute)?;
+        let optimized =
+            guarded("optimize the model", || typed.into_optimized()).map_err(attribute)?;
+        let runnable =
+            guarded("plan the model", || optimized.into_runnable()).map_err(attribute)?;
         Ok(Plan {
             runnable,
             inputs: self.inputs.clone(),
             input_shapes: bound.iter().map(|t| t.shape().to_vec()).collect(),
             outputs,
+            origins: self.origins.clone(),
         })
     }
 
@@ -91,7 +99,8 @@ impl Plan {
             }
             values.push((*tensor).clone().into_tvalue());
         }
-        let results = guarded("run the model", || self.runnable.run(values))?;
+        let results = guarded("run the model", || self.runnable.run(values))
+            .map_err(|e| self.origins.attribute(e))?;
         self.outputs
             .iter()
             .zip(results)

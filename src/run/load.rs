@@ -2,6 +2,7 @@
 
 use std::collections::HashMap;
 use std::path::Path;
+use std::sync::Arc;
 
 use prost::Message;
 use tract_onnx::pb::tensor_proto::DataLocation;
@@ -10,7 +11,7 @@ use tract_onnx::prelude::{InferenceModel, OutletId};
 use tract_onnx::tract_core::ops::unimpl::UnimplementedOp;
 
 use super::error::guarded;
-use super::names::{NodeOrigin, make_node_names_unique};
+use super::names::{NodeOrigin, NodeOrigins, make_node_names_unique};
 use super::signature::{InputSpec, read_inputs};
 use super::{RunError, framework};
 
@@ -23,6 +24,7 @@ pub struct TractModel {
     pub(crate) inputs: Vec<InputSpec>,
     pub(crate) outputs: Vec<String>,
     pub(crate) node_outputs: Vec<String>,
+    pub(crate) origins: Arc<NodeOrigins>,
 }
 
 /// Decodes `model_bytes` and loads them into tract. `model_dir` is the folder external data is
@@ -55,7 +57,8 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
         refuse_external_data(graph)?;
     }
     let onnx = framework::corrected_onnx();
-    let parsed = guarded("load the model", || onnx.parse(&proto, dir))?;
+    let parsed =
+        guarded("load the model", || onnx.parse(&proto, dir)).map_err(|e| origins.attribute(e))?;
     if !parsed.unresolved_inputs.is_empty() {
         return Err(RunError::UndefinedTensors(parsed.unresolved_inputs));
     }
@@ -66,7 +69,7 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
         .filter(|node| node.op_is::<UnimplementedOp>())
         .map(|node| {
             origins
-                .get(&node.name)
+                .find(&node.name)
                 .map_or_else(|| node.name.clone(), NodeOrigin::to_string)
         })
         .collect();
@@ -79,6 +82,7 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
         inputs,
         outputs,
         node_outputs,
+        origins: Arc::new(origins),
     })
 }
 

@@ -8,6 +8,8 @@ use std::collections::{HashMap, HashSet};
 
 use tract_onnx::pb::{GraphProto, NodeProto};
 
+use super::RunError;
+
 /// Where a node that tract sees came from in the ONNX graph.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub(crate) struct NodeOrigin {
@@ -29,10 +31,49 @@ impl std::fmt::Display for NodeOrigin {
     }
 }
 
+/// The origin of each top-level node, keyed by the name tract sees.
+#[derive(Debug, Clone, Default)]
+pub(crate) struct NodeOrigins(HashMap<String, NodeOrigin>);
+
+impl NodeOrigins {
+    /// The origin of tract node `name`, or of the ONNX node a tract expansion node (named
+    /// `NAME.part`) was wired for.
+    pub(crate) fn find(&self, name: &str) -> Option<&NodeOrigin> {
+        let mut name = name;
+        loop {
+            if let Some(origin) = self.0.get(name) {
+                return Some(origin);
+            }
+            name = &name[..name.rfind('.')?];
+        }
+    }
+
+    /// Names the ONNX node a tract error is about, when tract's message cites one
+    /// (`#12 "name" Op`).
+    pub(crate) fn attribute(&self, error: RunError) -> RunError {
+        let RunError::Tract { stage, message } = error else {
+            return error;
+        };
+        let cited = message.match_indices('#').find_map(|(at, _)| {
+            let rest = message[at + 1..].trim_start_matches(|c: char| c.is_ascii_digit());
+            let rest = rest.strip_prefix(" \"")?;
+            self.find(&rest[..rest.find('"')?])
+        });
+        match cited {
+            Some(origin) => RunError::NodeFailed {
+                stage,
+                node: origin.to_string(),
+                message,
+            },
+            None => RunError::Tract { stage, message },
+        }
+    }
+}
+
 /// Gives every node of `graph` and of its subgraphs an explicit name unique within its graph,
 /// keeping the original name where it is already unique. Returns the origin of each top-level node
 /// keyed by the name tract will see.
-pub(crate) fn make_node_names_unique(graph: &mut GraphProto) -> HashMap<String, NodeOrigin> {
+pub(crate) fn make_node_names_unique(graph: &mut GraphProto) -> NodeOrigins {
     let mut taken: HashSet<String> = HashSet::new();
     taken.extend(graph.input.iter().map(|i| i.name.clone()));
     taken.extend(graph.initializer.iter().map(|t| t.name.clone()));
@@ -74,7 +115,7 @@ pub(crate) fn make_node_names_unique(graph: &mut GraphProto) -> HashMap<String, 
             }
         }
     }
-    origins
+    NodeOrigins(origins)
 }
 
 /// The name tract would derive for `node`: its own, else its first output, else its op type.

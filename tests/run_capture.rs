@@ -203,3 +203,11 @@ fn a_compiled_plan_runs_again_and_refuses_another_shape() {
     );
     assert!(plan.run(&[other]).is_err());
 }
+
+/// Models and plans can be shared between threads (an audit may run samples in parallel).
+#[test]
+fn models_and_plans_are_send_and_sync() {
+    fn shared<T: Send + Sync>() {}
+    shared::<actswap::run::TractModel>();
+    shared::<actswap::run::Plan>();
+}

@@ -380,6 +380,11 @@ fn bad_inputs_get_one_line_errors() {
     let loader = InputLoader::new(&inputs);
     let error = |text: String| loader.from_bindings(&[bind(&text)]).unwrap_err();
 
+    let e = loader.from_bindings(&[]).unwrap_err();
+    assert!(
+        matches!(&e, RunError::MissingInput(name) if name == "x"),
+        "{e}"
+    );
     let e = error(format!("y={}", f64_file.display()));
     assert!(
         matches!(&e, RunError::UnknownInput { name, .. } if name == "y"),

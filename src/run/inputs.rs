@@ -256,7 +256,8 @@ impl<'m> InputLoader<'m> {
 
     /// Splits the tensors given per input into samples (see the module doc).
     fn assemble(&self, given: BTreeMap<String, Vec<Tensor>>) -> Result<Vec<Sample>, RunError> {
-        let count = given.values().map(Vec::len).max().unwrap_or(0);
+        // No bindings at all still make one sample: empty, which only a model without inputs takes.
+        let count = given.values().map(Vec::len).max().unwrap_or(1);
         if let Some((name, list)) = given.iter().find(|(_, l)| l.len() != 1 && l.len() != count) {
             return Err(RunError::BadArgument {
                 text: name.clone(),

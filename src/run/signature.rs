@@ -102,7 +102,9 @@ pub(crate) fn read_inputs(graph: &GraphProto) -> Result<Vec<InputSpec>, RunError
                 .r#type
                 .as_ref()
                 .and_then(|t| t.value.as_ref())
-                .ok_or_else(|| RunError::Decode(format!("input '{}' has no type", input.name)))?;
+                .ok_or_else(|| {
+                    RunError::Decode(format!("input '{}' is not a typed tensor", input.name))
+                })?;
             Ok(InputSpec {
                 name: input.name.clone(),
                 datum_type: datum_type(tensor.elem_type)

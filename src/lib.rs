@@ -5,4 +5,5 @@ pub mod catalog;
 pub mod cli;
 pub mod onnx;
 pub mod report;
+pub mod run;
 pub mod scan;

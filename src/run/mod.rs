@@ -1,0 +1,35 @@
+//! Running ONNX models on CPU with tract: loading, feeding inputs, running, and reading outputs
+//! in the model's own element type.
+//!
+//! [`prepare`] -> [`TractModel`] -> [`TractModel::compile`] -> [`Plan`] -> [`Plan::run`] ->
+//! [`NamedTensor`]s. Inputs come from files or seeded random data ([`inputs`]).
+//!
+//! # Workarounds for tract 0.23.9
+//! - Node names are made unique before tract sees them (it refuses repeats at typing).
+//! - Celu and Swish load with loaders that honour `alpha` (tract's ignore it).
+//! - A model with ops tract lacks is refused at [`prepare`], naming each op type and node.
+//! - tract returns shape values as symbolic dims; they are handed back as int64, as ONNX types them.
+//! - Errors and panics inside tract become one-line [`RunError`]s.
+//!
+//! # Capturing intermediate values
+//! Any ONNX tensor name can be requested as an extra output. tract keeps requested values through
+//! optimization by computing them beside the fused path (a Sigmoid+Mul fused into SiLU still
+//! yields the Sigmoid's output), so the graph outputs are the same with or without requests.
+
+mod celu;
+mod error;
+mod execute;
+mod framework;
+pub mod inputs;
+mod load;
+mod names;
+mod signature;
+mod swish;
+mod tensor;
+
+pub use error::RunError;
+pub use execute::Plan;
+pub use load::{TractModel, prepare};
+pub use signature::{Dim, InputSpec};
+pub use tensor::{NamedTensor, Sample, to_f64_array};
+pub use tract_onnx::prelude::{DatumType, Tensor};

@@ -4,6 +4,8 @@
 pub mod catalog;
 pub mod cli;
 pub mod onnx;
+pub mod plan;
 pub mod report;
+pub mod rewrite;
 pub mod run;
 pub mod scan;

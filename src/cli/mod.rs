@@ -7,6 +7,8 @@ mod catalog;
 mod info;
 mod output;
 mod scan;
+mod swap;
+mod targets;
 
 use std::process::ExitCode;
 
@@ -39,6 +41,8 @@ struct Cli {
 enum Command {
     Info(info::Args),
     Scan(scan::Args),
+    Swap(swap::Args),
+    Targets(targets::Args),
     Catalog(catalog::Args),
 }
 
@@ -80,6 +84,8 @@ fn run(cli: Cli) -> Result<ExitCode> {
     match cli.command {
         Command::Info(args) => info::run(args),
         Command::Scan(args) => scan::run(args),
+        Command::Swap(args) => swap::run(args),
+        Command::Targets(args) => targets::run(args),
         Command::Catalog(args) => catalog::run(args),
     }
 }

@@ -39,12 +39,22 @@ pub enum GraphKind {
     },
 }
 
+/// How to reach a graph inside the model proto: an optional local function, then a chain of
+/// (node index, attribute index, index in the attribute's `graphs` list or `None` for `g`).
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct GraphLocation {
+    pub function: Option<usize>,
+    pub steps: Vec<(usize, usize, Option<usize>)>,
+}
+
 /// One graph (or function body) with its lookup tables.
 #[derive(Debug)]
 pub struct GraphIndex<'m> {
     /// Readable address, e.g. `main`, `main/If_3.then_branch`, `function:custom.Block`.
     pub path: String,
     pub kind: GraphKind,
+    /// Where the graph sits in the model proto.
+    pub location: GraphLocation,
     /// Index of the enclosing graph in [`ModelIndex::graphs`] (outer scope), if any.
     pub parent: Option<usize>,
     pub nodes: &'m [NodeProto],
@@ -83,12 +93,13 @@ impl<'m> ModelIndex<'m> {
             graph,
             "main".into(),
             GraphKind::Main,
+            GraphLocation::default(),
             None,
             &opsets,
             &HashSet::new(),
         )?;
-        for f in &proto.functions {
-            index.add_function(f, &opsets)?;
+        for (i, f) in proto.functions.iter().enumerate() {
+            index.add_function(i, f, &opsets)?;
         }
         Ok(index)
     }
@@ -154,11 +165,13 @@ impl<'m> ModelIndex<'m> {
             .and_then(|p| self.constant_depth(p, name, depth + 1))
     }
 
+    #[allow(clippy::too_many_arguments)]
     fn add_graph(
         &mut self,
         graph: &'m GraphProto,
         path: String,
         kind: GraphKind,
+        location: GraphLocation,
         parent: Option<usize>,
         opsets: &BTreeMap<String, i64>,
         outer: &HashSet<&'m str>,
@@ -193,6 +206,7 @@ impl<'m> ModelIndex<'m> {
             &graph.node,
             path.clone(),
             kind,
+            location,
             parent,
             opsets.clone(),
             inputs,
@@ -206,6 +220,7 @@ impl<'m> ModelIndex<'m> {
 
     fn add_function(
         &mut self,
+        i: usize,
         f: &'m FunctionProto,
         model_opsets: &BTreeMap<String, i64>,
     ) -> Result<()> {
@@ -227,6 +242,10 @@ impl<'m> ModelIndex<'m> {
                 domain: f.domain().to_string(),
                 name: f.name().to_string(),
             },
+            GraphLocation {
+                function: Some(i),
+                steps: Vec::new(),
+            },
             None,
             opsets.clone(),
             inputs,
@@ -244,6 +263,7 @@ impl<'m> ModelIndex<'m> {
         nodes: &'m [NodeProto],
         path: String,
         kind: GraphKind,
+        location: GraphLocation,
         parent: Option<usize>,
         opsets: BTreeMap<String, i64>,
         inputs: Vec<&'m str>,
@@ -324,6 +344,7 @@ impl<'m> ModelIndex<'m> {
         self.graphs.push(GraphIndex {
             path,
             kind,
+            location,
             parent,
             nodes,
             inputs,
@@ -358,21 +379,24 @@ impl<'m> ModelIndex<'m> {
                 p = pg.parent;
             }
         }
+        let base_location = self.graphs[gi].location.clone();
         for (i, n) in nodes.iter().enumerate() {
-            for a in &n.attribute {
-                let single = a.g.iter().map(|g| (g, a.name().to_string()));
+            for (ai, a) in n.attribute.iter().enumerate() {
+                let single = a.g.iter().map(|g| (g, a.name().to_string(), None));
                 let many = a
                     .graphs
                     .iter()
                     .enumerate()
-                    .map(|(k, g)| (g, format!("{}[{k}]", a.name())));
-                for (g, attr) in single.chain(many) {
+                    .map(|(k, g)| (g, format!("{}[{k}]", a.name()), Some(k)));
+                for (g, attr, k) in single.chain(many) {
                     let path = format!("{base}/{}.{attr}", node_label(n, i));
                     let kind = GraphKind::Subgraph {
                         node: node_label(n, i),
                         attribute: attr,
                     };
-                    self.add_graph(g, path, kind, Some(gi), opsets, &visible)?;
+                    let mut location = base_location.clone();
+                    location.steps.push((i, ai, k));
+                    self.add_graph(g, path, kind, location, Some(gi), opsets, &visible)?;
                 }
             }
         }
@@ -419,6 +443,11 @@ impl<'m> GraphIndex<'m> {
     /// Node indices in a topological order (the file's order wherever it already is one).
     pub fn order(&self) -> &[usize] {
         &self.order
+    }
+
+    /// True when the nodes are stored in a topological order.
+    pub fn is_stored_in_order(&self) -> bool {
+        self.order.iter().enumerate().all(|(i, &n)| i == n)
     }
 
     /// The opset version of `domain` in force here (`""` and `ai.onnx` are the same domain).

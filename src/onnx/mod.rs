@@ -16,6 +16,6 @@ pub mod proto {
     include!(concat!(env!("OUT_DIR"), "/onnx.rs"));
 }
 
-pub use index::{GraphIndex, GraphKind, ModelIndex};
+pub use index::{GraphIndex, GraphKind, GraphLocation, ModelIndex};
 pub use model::{Model, SaveOptions};
 pub use tensor::TensorValue;

@@ -240,7 +240,14 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 r
             }
         }?;
-        let mut site = self.site(nodes, input, found.kind, found.params, Form::Decomposed);
+        // A slope that varies by channel is PRelu's job: LeakyRelu's alpha is one number.
+        let kind = match found.kind.id {
+            "leaky_relu" if matches!(found.params[0], ParamValue::PerChannel(_)) => {
+                catalog::get("prelu").expect("catalogue kind")
+            }
+            _ => found.kind,
+        };
+        let mut site = self.site(nodes, input, kind, found.params, Form::Decomposed);
         site.param_shape = expr.channel_shape.clone().filter(|_| {
             site.params
                 .values()

@@ -4,3 +4,4 @@
 pub mod catalog;
 pub mod cli;
 pub mod onnx;
+pub mod run;

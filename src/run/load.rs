@@ -1,0 +1,121 @@
+//! Loading ONNX model bytes into tract, with unique node names and corrected op loaders.
+
+use std::collections::HashMap;
+use std::path::Path;
+
+use prost::Message;
+use tract_onnx::pb::tensor_proto::DataLocation;
+use tract_onnx::pb::{GraphProto, ModelProto};
+use tract_onnx::prelude::{InferenceModel, OutletId};
+use tract_onnx::tract_core::ops::unimpl::UnimplementedOp;
+
+use super::error::guarded;
+use super::names::{NodeOrigin, make_node_names_unique};
+use super::signature::{InputSpec, read_inputs};
+use super::{RunError, framework};
+
+/// A model parsed by tract, not yet typed or optimized; see [`TractModel::compile`] and
+/// [`TractModel::run`].
+#[derive(Debug, Clone)]
+pub struct TractModel {
+    pub(crate) model: InferenceModel,
+    pub(crate) outlets: HashMap<String, OutletId>,
+    pub(crate) inputs: Vec<InputSpec>,
+    pub(crate) outputs: Vec<String>,
+    pub(crate) node_outputs: Vec<String>,
+}
+
+/// Decodes `model_bytes` and loads them into tract. `model_dir` is the folder external data is
+/// resolved against (none: the model must carry all its data).
+///
+/// Node names are made unique first (see the `names` module) and Celu and Swish load with the
+/// corrected loaders. A model with ops tract cannot run is refused here, naming each op type and
+/// node.
+pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractModel, RunError> {
+    let mut proto = ModelProto::decode(model_bytes).map_err(|e| RunError::Decode(e.to_string()))?;
+    let graph = proto
+        .graph
+        .as_mut()
+        .ok_or_else(|| RunError::Decode("no graph".to_string()))?;
+    let origins = make_node_names_unique(graph);
+    let inputs = read_inputs(graph)?;
+    let outputs = graph.output.iter().map(|o| o.name.clone()).collect();
+    let node_outputs = graph
+        .node
+        .iter()
+        .flat_map(|n| n.output.iter().filter(|o| !o.is_empty()).cloned())
+        .collect();
+    let dir = model_dir
+        .map(|d| {
+            d.to_str()
+                .ok_or_else(|| RunError::file(d, "folder name is not valid UTF-8"))
+        })
+        .transpose()?;
+    if model_dir.is_none() {
+        refuse_external_data(graph)?;
+    }
+    let onnx = framework::corrected_onnx();
+    let parsed = guarded("load the model", || onnx.parse(&proto, dir))?;
+    if !parsed.unresolved_inputs.is_empty() {
+        return Err(RunError::UndefinedTensors(parsed.unresolved_inputs));
+    }
+    let unsupported: Vec<String> = parsed
+        .model
+        .nodes()
+        .iter()
+        .filter(|node| node.op_is::<UnimplementedOp>())
+        .map(|node| {
+            origins
+                .get(&node.name)
+                .map_or_else(|| node.name.clone(), NodeOrigin::to_string)
+        })
+        .collect();
+    if !unsupported.is_empty() {
+        return Err(RunError::UnsupportedOps(unsupported));
+    }
+    Ok(TractModel {
+        model: parsed.model,
+        outlets: parsed.outlets_by_name,
+        inputs,
+        outputs,
+        node_outputs,
+    })
+}
+
+/// Refuses a graph whose initializers live in external files, which need the model's folder.
+fn refuse_external_data(graph: &GraphProto) -> Result<(), RunError> {
+    let external = graph
+        .initializer
+        .iter()
+        .find(|t| t.data_location == Some(DataLocation::External as i32));
+    match external {
+        Some(t) => Err(RunError::ExternalDataWithoutFolder {
+            tensor: t.name.clone(),
+            location: t
+                .external_data
+                .iter()
+                .find(|e| e.key == "location")
+                .map(|e| e.value.clone())
+                .unwrap_or_default(),
+        }),
+        None => Ok(()),
+    }
+}
+
+impl TractModel {
+    /// The graph inputs that are not initializers, in graph order.
+    pub fn inputs(&self) -> &[InputSpec] {
+        &self.inputs
+    }
+
+    /// The graph output names, in graph order.
+    pub fn output_names(&self) -> &[String] {
+        &self.outputs
+    }
+
+    /// Every tensor produced by a top-level node, in node order: the names that can be requested
+    /// as extra outputs.
+    pub fn node_output_names(&self) -> &[String] {
+        &self.node_outputs
+    }
+}

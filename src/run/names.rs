@@ -1,0 +1,89 @@
+//! Unique node names, which tract requires and exporters do not guarantee.
+//!
+//! tract names a node after its `name`, or its first output when unnamed, and refuses a model
+//! where two nodes (or a node and a graph input or initializer) share a name. Node names carry no
+//! meaning in ONNX (tensors are wired by tensor name), so renaming them changes nothing that runs.
+
+use std::collections::{HashMap, HashSet};
+
+use tract_onnx::pb::{GraphProto, NodeProto};
+
+/// Where a node that tract sees came from in the ONNX graph.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct NodeOrigin {
+    /// The node's `op_type`.
+    pub op_type: String,
+    /// The node's `name` in the ONNX file (may be empty).
+    pub onnx_name: String,
+    /// The node's position in its graph's node list.
+    pub index: usize,
+}
+
+impl std::fmt::Display for NodeOrigin {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        if self.onnx_name.is_empty() {
+            write!(f, "{} (unnamed node #{})", self.op_type, self.index)
+        } else {
+            write!(f, "{} (node '{}')", self.op_type, self.onnx_name)
+        }
+    }
+}
+
+/// Gives every node of `graph` and of its subgraphs an explicit name unique within its graph,
+/// keeping the original name where it is already unique. Returns the origin of each top-level node
+/// keyed by the name tract will see.
+pub(crate) fn make_node_names_unique(graph: &mut GraphProto) -> HashMap<String, NodeOrigin> {
+    let mut taken: HashSet<String> = HashSet::new();
+    taken.extend(graph.input.iter().map(|i| i.name.clone()));
+    taken.extend(graph.initializer.iter().map(|t| t.name.clone()));
+    // Names a subgraph reads from outer scopes become tract sources named after them.
+    let produced: HashSet<&str> = graph
+        .node
+        .iter()
+        .flat_map(|n| n.output.iter().map(String::as_str))
+        .collect();
+    let consumed: Vec<String> = graph
+        .node
+        .iter()
+        .flat_map(|n| n.input.iter())
+        .filter(|i| !i.is_empty() && !produced.contains(i.as_str()))
+        .cloned()
+        .collect();
+    taken.extend(consumed);
+
+    let mut next_suffix: HashMap<String, usize> = HashMap::new();
+    let mut origins = HashMap::with_capacity(graph.node.len());
+    for (index, node) in graph.node.iter_mut().enumerate() {
+        let base = base_name(node);
+        let mut name = base.clone();
+        while taken.contains(&name) {
+            let k = next_suffix.entry(base.clone()).or_insert(0);
+            *k += 1;
+            name = format!("{base}#{k}");
+        }
+        taken.insert(name.clone());
+        let origin = NodeOrigin {
+            op_type: node.op_type.clone(),
+            onnx_name: std::mem::replace(&mut node.name, name.clone()),
+            index,
+        };
+        origins.insert(name, origin);
+        for attribute in &mut node.attribute {
+            for subgraph in attribute.g.iter_mut().chain(attribute.graphs.iter_mut()) {
+                make_node_names_unique(subgraph);
+            }
+        }
+    }
+    origins
+}
+
+/// The name tract would derive for `node`: its own, else its first output, else its op type.
+fn base_name(node: &NodeProto) -> String {
+    if !node.name.is_empty() {
+        node.name.clone()
+    } else if let Some(out) = node.output.first().filter(|o| !o.is_empty()) {
+        out.clone()
+    } else {
+        node.op_type.clone()
+    }
+}

@@ -19,7 +19,8 @@
 // Check values keep the digits their sources give.
 #![allow(clippy::excessive_precision)]
 
-use std::path::PathBuf;
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
 
 use actswap::catalog::emit::{
     EmitCtx, Emitted, FormId, NEWEST_OPSET, OpNeed, ParamArg, Unavailable, emit, min_opset, needs,
@@ -99,6 +100,8 @@ struct Case {
     runner: Runner,
     /// A runtime op that overflows to +inf for every x above this (said in `why`).
     overflows_above: Option<f32>,
+    /// Position in the table.
+    index: usize,
 }
 
 fn s(v: f64) -> ParamArg {
@@ -121,9 +124,9 @@ fn cases() -> Vec<Case> {
     use FormId::{Fused, Primitive};
     use Runner::{Corrected, Tract};
     use Tol::{Approx, Close, Exact, TailFloor};
-    let case = |kind, form, params: Vec<ParamArg>, tol, runner, why| Case { kind, form, params, tol, why, runner, overflows_above: None };
+    let case = |kind, form, params: Vec<ParamArg>, tol, runner, why| Case { kind, form, params, tol, why, runner, overflows_above: None, index: 0 };
     let overflowing = |c: Case, above| Case { overflows_above: Some(above), ..c };
-    vec![
+    let table = vec![
         case("relu",             Fused,     vec![],                 Exact,  Tract, "one exact op"),
         case("relu",             Primitive, vec![],                 Exact,  Tract, "Max(x, 0) is exact"),
         case("relu6",            Fused,     vec![],                 Exact,  Tract, "Clip is exact"),
@@ -169,7 +172,8 @@ fn cases() -> Vec<Case> {
         case("gelu_tanh",        Primitive, vec![],                 TailFloor, Tract, "0.5 x (1 + tanh z) on tract's tanh floor"),
         case("mish",             Fused,     vec![],                 Close,  Tract, "ln(1 + e) rounds 1 + e, times |x|; tanh's floor near 1"),
         case("mish",             Primitive, vec![],                 Close,  Tract, "ln(1 + e) rounds 1 + e, times |x|; tanh's floor near 1"),
-    ]
+    ];
+    table.into_iter().enumerate().map(|(index, c)| Case { index, ..c }).collect()
 }
 
 fn kind(id: &str) -> &'static Kind {
@@ -205,7 +209,15 @@ fn site_model(emitted: &Emitted, elem: DataType, shape: &[usize], version: i64) 
         output: vec![value("y", elem, &dims)],
         ..Default::default()
     };
-    let proto = model(graph, vec![opset("", version)], "actswap-tests");
+    let mut proto = model(graph, vec![opset("", version)], "actswap-tests");
+    // The IR version each opset came with (onnx.helper.VERSION_TABLE, onnx 1.23.2).
+    proto.ir_version = Some(match version {
+        ..=18 => 8,
+        19..=20 => 9,
+        21..=22 => 10,
+        23 => 11,
+        _ => 12,
+    });
     Model::from_proto(proto, PathBuf::from("."))
         .encode()
         .to_vec()
@@ -310,6 +322,17 @@ fn run_case(case: &Case, version: i64) -> Result<(f64, Vec<String>), String> {
     let input = tract_ndarray::ArrayD::from_shape_vec(shape, values.clone())
         .map_err(|e| e.to_string())?
         .into_tensor();
+    if let Some(dir) = std::env::var_os("ACTSWAP_FORMS_DUMP") {
+        dump(
+            Path::new(&dir),
+            case,
+            version,
+            &bytes,
+            &shape_of(&input),
+            &values,
+            &channel,
+        )?;
+    }
     let out = run(&bytes, case.runner, input)?;
     let got = out
         .to_plain_array_view::<f32>()
@@ -339,6 +362,43 @@ fn run_case(case: &Case, version: i64) -> Result<(f64, Vec<String>), String> {
     Ok((worst, failures))
 }
 
+fn shape_of(t: &Tensor) -> Vec<usize> {
+    t.shape().to_vec()
+}
+
+/// With `ACTSWAP_FORMS_DUMP=DIR`, every case model goes to DIR with a line in DIR/cases.jsonl
+/// (kind, form, opset, input shape and values, stored parameters per channel, each element's
+/// channel) for scripts/check_forms.py, which validates each model with the onnx checker and
+/// runs it in onnxruntime.
+fn dump(
+    dir: &Path,
+    case: &Case,
+    version: i64,
+    bytes: &[u8],
+    shape: &[usize],
+    values: &[f32],
+    channel: &[usize],
+) -> Result<(), String> {
+    use std::io::Write;
+    std::fs::create_dir_all(dir).map_err(|e| e.to_string())?;
+    let name = format!(
+        "{}-{}-{}-op{version}.onnx",
+        case.index, case.kind, case.form
+    );
+    std::fs::write(dir.join(&name), bytes).map_err(|e| e.to_string())?;
+    let params: Vec<Vec<f64>> = (0..CHANNELS).map(|c| stored_params(case, c)).collect();
+    let line = serde_json::json!({
+        "file": name, "kind": case.kind, "form": case.form.name(), "opset": version,
+        "shape": shape, "params": params, "channel": channel, "x": values,
+    });
+    let mut f = std::fs::OpenOptions::new()
+        .create(true)
+        .append(true)
+        .open(dir.join("cases.jsonl"))
+        .map_err(|e| e.to_string())?;
+    writeln!(f, "{line}").map_err(|e| e.to_string())
+}
+
 #[test]
 fn every_form_matches_its_reference_in_tract() {
     let mut report = Vec::new();
@@ -363,6 +423,105 @@ fn every_form_matches_its_reference_in_tract() {
                 }
                 Err(e) => failed.push(format!("{label}: {e}")),
             }
+        }
+    }
+    eprintln!("{}", report.join("\n"));
+    assert!(failed.is_empty(), "\n{}", failed.join("\n"));
+}
+
+/// Runs a form on one value in ideal float32 arithmetic: each op's value as the ONNX operator
+/// schema defines it, computed in f64 (libm's erf) and rounded once to float32, as a runtime
+/// whose ops are correctly rounded would. A per-channel initializer gives channel `c`'s value.
+fn ideal_f32(e: &Emitted, x: f32, c: usize) -> f32 {
+    let mut env: HashMap<&str, f64> = HashMap::from([("x", x as f64)]);
+    for t in &e.initializers {
+        let v = tensor::read(t, Path::new("."), 1 << 20).unwrap();
+        env.insert(
+            t.name(),
+            if v.data.len() == 1 {
+                v.data[0]
+            } else {
+                v.data[c]
+            },
+        );
+    }
+    let round = |v: f64| v as f32 as f64;
+    for n in &e.nodes {
+        let a = |i: usize| env[n.input[i].as_str()];
+        let attr = |name: &str| {
+            let found = n.attribute.iter().find(|a| a.name() == name);
+            found.map(|a| a.f() as f64).unwrap()
+        };
+        let y = match n.op_type() {
+            "Relu" => a(0).max(0.0),
+            "Max" => a(0).max(a(1)),
+            "Min" => a(0).min(a(1)),
+            "Clip" if n.input.len() == 3 => a(0).max(a(1)).min(a(2)),
+            "Clip" => a(0).max(attr("min")).min(attr("max")),
+            "Abs" => a(0).abs(),
+            "Neg" => -a(0),
+            "Add" => round(a(0) + a(1)),
+            "Sub" => round(a(0) - a(1)),
+            "Mul" => round(a(0) * a(1)),
+            "Div" => round(a(0) / a(1)),
+            "Exp" => round(a(0).exp()),
+            "Log" => round(a(0).ln()),
+            "Tanh" => round(a(0).tanh()),
+            "Erf" => round(libm::erf(a(0))),
+            "Sigmoid" if a(0) >= 0.0 => round(1.0 / (1.0 + (-a(0)).exp())),
+            "Sigmoid" => round(a(0).exp() / (1.0 + a(0).exp())),
+            "Less" => f64::from(u8::from(a(0) < a(1))),
+            "Greater" => f64::from(u8::from(a(0) > a(1))),
+            "Where" if a(0) != 0.0 => a(1),
+            "Where" => a(2),
+            op => panic!("no ideal {op}"),
+        };
+        env.insert(n.output[0].as_str(), y);
+    }
+    env[e.nodes.last().unwrap().output[0].as_str()] as f32
+}
+
+#[test]
+fn every_primitive_form_is_sound_in_float32() {
+    // Reference: the catalogue formula (see the module doc). Rung: Exact for the cases that
+    // are Exact in tract, else Close, at every input including the extremes: no NaN, no
+    // overflow the reference does not have, and no loss beyond a few float32 roundings.
+    let mut report = Vec::new();
+    let mut failed = Vec::new();
+    for case in cases().into_iter().filter(|c| c.form == FormId::Primitive) {
+        let k = kind(case.kind);
+        let tol = if case.tol == Tol::Exact {
+            Tol::Exact
+        } else {
+            Tol::Close
+        };
+        let channels = if layout(&case, &[0.0]).0.len() == 4 {
+            CHANNELS
+        } else {
+            1
+        };
+        for version in opsets(k, case.form, channels > 1) {
+            let e = emit(k, case.form, &ctx(&case.params, DataType::Float, version)).unwrap();
+            let mut worst = 0f64;
+            for c in 0..channels {
+                for x in inputs() {
+                    let got = ideal_f32(&e, x, c) as f64;
+                    let r = k.eval(x as f64, &stored_params(&case, c));
+                    if got.is_finite() && (r as f32).is_finite() {
+                        worst = worst.max((got - r).abs() / (1.0 + r.abs()));
+                    }
+                    if let Some(problem) = tol.check(x as f64, got, r) {
+                        failed.push(format!(
+                            "{} {:?} opset {version} x = {x:e}: {problem}",
+                            case.kind, case.params
+                        ));
+                    }
+                }
+            }
+            report.push(format!(
+                "{} {:?} opset {version}: {tol:?}, max error / (1 + |ref|) = {worst:.3e}",
+                case.kind, case.params
+            ));
         }
     }
     eprintln!("{}", report.join("\n"));

@@ -1,7 +1,9 @@
 //! celu: max(0, x) + min(0, alpha * (e^(x/alpha) - 1)).
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::{bisect, finite};
 use super::{FusedOp, Kind, Param};
+use crate::onnx::builder::attr_f;
 
 pub const KIND: Kind = Kind {
     id: "celu",
@@ -27,8 +29,9 @@ pub const KIND: Kind = Kind {
     source: "Barron 2017, 'Continuously Differentiable Exponential Linear Units', \
              arXiv:1704.07483 (from memory); ONNX operator schema Celu",
     forms: &[
-        "fused: Celu(x; alpha) (opset 12)",
-        "primitive: Mul(alpha, Elu(Div(x, alpha); alpha = 1))",
+        "fused: Celu(x; alpha) (opset 12; float32 only before opset 28)",
+        "primitive: Add(Relu(x), Mul(Sub(Exp(Div(Min(x, 0), alpha)), 1), alpha)) (opset 8)",
+        "also seen: Mul(alpha, Elu(Div(x, alpha); alpha = 1)) (the ONNX function body)",
     ],
     example: "A glacier-melt emulator (invented) uses Celu(alpha = 2): celu(-1; 2) = \
               -0.7869386805747332.",
@@ -36,6 +39,8 @@ pub const KIND: Kind = Kind {
                     opset 6. Recovery solves alpha * (e^(-1/alpha) - 1) = f(-1), monotone in \
                     alpha > 0, by bisection on log(alpha).",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -55,4 +60,32 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     };
     let (lo, hi) = bisect((1e-9f64).ln(), (1e12f64).ln(), |t| g(t) < y);
     Some(vec![(lo / 2.0 + hi / 2.0).exp()])
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    b.require(0, |a| a > 0.0, "must be positive")?;
+    let alpha = b.scalar(0)?;
+    let attrs = vec![attr_f("alpha", alpha as f32)];
+    let y = b.node(ops::CELU, "celu", &[ctx.input], attrs)?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    b.require(0, |a| a > 0.0, "must be positive")?;
+    let (alpha, zero, one) = (
+        b.param(0, "alpha"),
+        b.constant("zero", 0.0),
+        b.constant("one", 1.0),
+    );
+    let positive = b.node(ops::RELU, "relu", &[ctx.input], vec![])?;
+    // Min before Exp: exp(x / alpha) never sees a positive argument, so it cannot overflow.
+    let negative = b.node(ops::MIN, "min", &[ctx.input, &zero], vec![])?;
+    let scaled = b.node(ops::DIV, "div", &[&negative, &alpha], vec![])?;
+    let e = b.node(ops::EXP, "exp", &[&scaled], vec![])?;
+    let em1 = b.node(ops::SUB, "sub", &[&e, &one], vec![])?;
+    let negative = b.node(ops::MUL, "mul", &[&em1, &alpha], vec![])?;
+    let y = b.node(ops::ADD, "add", &[&positive, &negative], vec![])?;
+    b.finish(&y)
 }

@@ -1,5 +1,6 @@
 //! clip: x limited to [min, max].
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::finite;
 use super::{FusedOp, Kind, Param};
 
@@ -38,8 +39,8 @@ pub const KIND: Kind = Kind {
     formula: "f(x) = min(max(x, min), max); every output is max when min > max",
     source: "ONNX operator schema Clip (onnx/defs/math/defs.cc, old.cc)",
     forms: &[
-        "fused: Clip(x, min, max)",
-        "primitive: Min(Max(x, min), max)",
+        "fused: Clip(x, min, max) (opset 6 with attributes, constant inputs from 11)",
+        "primitive: Min(Max(x, min), max) (opset 8); min > max gives max, as Clip does",
     ],
     example: "A wind-turbine vibration model (invented) bounds a hidden layer with \
               Clip(x, -1, 1): clip(-3; -1, 1) = -1, clip(0.4; -1, 1) = 0.4.",
@@ -48,6 +49,8 @@ pub const KIND: Kind = Kind {
                     (+-3.4028234663852886e38). A clip with neither bound active is the \
                     identity and is not identified.",
     piecewise_linear: true,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -69,4 +72,19 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     let min = if unclipped(lo, -REACH) { -NO_BOUND } else { lo };
     let max = if unclipped(hi, REACH) { NO_BOUND } else { hi };
     (min < max && (min > -NO_BOUND || max < NO_BOUND)).then(|| vec![min, max])
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let (min, max) = (b.scalar(0)?, b.scalar(1)?);
+    let y = b.clip("clip", ctx.input, min, max)?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let (min, max) = (b.param(0, "min"), b.param(1, "max"));
+    let lower = b.node(ops::MAX, "max", &[ctx.input, &min], vec![])?;
+    let y = b.node(ops::MIN, "min", &[&lower, &max], vec![])?;
+    b.finish(&y)
 }

@@ -5,10 +5,40 @@ use std::fmt::Write;
 use serde_json::{Value, json};
 
 use super::Kind;
+use super::emit::{FormId, OpNeed, Unavailable, least, min_opset};
 use super::substitute::{ErrorBound, rules};
 
 /// Text width the description wraps to.
 const WIDTH: usize = 96;
+
+/// One form `kind` emits, with every parameter a scalar or, with `per_channel`, each per-channel
+/// parameter a tensor.
+struct EmittedForm {
+    form: FormId,
+    per_channel: bool,
+    /// The ops at the lowest opset that has the form, or why there is none.
+    ops: Result<Vec<OpNeed>, Unavailable>,
+}
+
+/// Every form of `kind`; the per-channel variants only for a kind with a per-channel parameter.
+fn emitted_forms(kind: &Kind) -> Vec<EmittedForm> {
+    let per_channel = kind.params.iter().any(|p| p.per_channel);
+    let variants: &[bool] = if per_channel {
+        &[false, true]
+    } else {
+        &[false]
+    };
+    FormId::ALL
+        .into_iter()
+        .flat_map(|form| {
+            variants.iter().map(move |&per_channel| EmittedForm {
+                form,
+                per_channel,
+                ops: least(kind, form, per_channel).map(|e| e.ops),
+            })
+        })
+        .collect()
+}
 
 /// One approximation of `kind` at its default parameters.
 struct Approximation {
@@ -35,7 +65,7 @@ fn approximations(kind: &Kind) -> Vec<Approximation> {
 }
 
 /// Human-readable description with sections Formula / Parameters / Source / Fused op / Forms /
-/// Example / Numeric notes / Approximations.
+/// Emitted forms / Example / Numeric notes / Approximations.
 pub fn describe(kind: &Kind) -> String {
     let mut out = format!("{}: {}\n", kind.id, kind.title);
     let mut section = |title: &str, lines: Vec<String>| {
@@ -81,6 +111,31 @@ pub fn describe(kind: &Kind) -> String {
         .collect();
     section("Fused op", fused);
     section("Forms", kind.forms.iter().map(|f| f.to_string()).collect());
+    let emitted = emitted_forms(kind)
+        .into_iter()
+        .map(|e| {
+            let name = if e.per_channel {
+                format!("{}, per channel", e.form)
+            } else {
+                e.form.to_string()
+            };
+            match e.ops {
+                Ok(ops) => {
+                    let list: Vec<String> = ops
+                        .iter()
+                        .map(|o| format!("{} {}", o.op_type, o.since))
+                        .collect();
+                    let from = min_opset(&ops).unwrap_or(1);
+                    format!("{name}: {}; from opset {from}", list.join(", "))
+                }
+                Err(why) => format!("{name}: not available ({why})"),
+            }
+        })
+        .collect();
+    section(
+        "Emitted forms (each op with the opset it needs, for float32)",
+        emitted,
+    );
     section("Example", vec![kind.example.to_string()]);
     section("Numeric notes", vec![kind.numeric_notes.to_string()]);
     let approx: Vec<String> = approximations(kind)
@@ -117,7 +172,9 @@ pub fn describe(kind: &Kind) -> String {
 
 /// Machine-readable description. Keys: id, title, formula, params [{name, default, per_channel,
 /// doc}], source, fused [{domain, op_type, since, note}] (domain "" is ai.onnx), forms,
-/// piecewise_linear, example, numeric_notes, approximations [{rule, to, to_params,
+/// emitted [{form, per_channel, ops [{op_type, since}], min_opset, unavailable}] (for float32,
+/// at the lowest opset that has the form; `unavailable` is null or the reason, and then `ops`
+/// is empty and `min_opset` null), piecewise_linear, example, numeric_notes, approximations [{rule, to, to_params,
 /// max_abs_error, at}] over the real line at the default parameters. `max_abs_error` is the
 /// string "inf" when the error is unbounded; `at` is "+inf" or "-inf" when the worst case is
 /// only approached (or, if unbounded, reached) at that end.
@@ -140,6 +197,26 @@ pub fn to_json(kind: &Kind) -> Value {
         .map(
             |f| json!({"domain": f.domain, "op_type": f.op_type, "since": f.since, "note": f.note}),
         )
+        .collect();
+    let emitted: Vec<Value> = emitted_forms(kind)
+        .into_iter()
+        .map(|e| {
+            let (ops, unavailable) = match e.ops {
+                Ok(ops) => (ops, Value::Null),
+                Err(why) => (Vec::new(), json!(why.to_string())),
+            };
+            let list: Vec<Value> = ops
+                .iter()
+                .map(|o| json!({"op_type": o.op_type, "since": o.since}))
+                .collect();
+            json!({
+                "form": e.form.name(),
+                "per_channel": e.per_channel,
+                "ops": list,
+                "min_opset": min_opset(&ops),
+                "unavailable": unavailable,
+            })
+        })
         .collect();
     let approx: Vec<Value> = approximations(kind)
         .into_iter()
@@ -171,6 +248,7 @@ pub fn to_json(kind: &Kind) -> Value {
         "source": kind.source,
         "fused": fused,
         "forms": kind.forms,
+        "emitted": emitted,
         "piecewise_linear": kind.piecewise_linear,
         "example": kind.example,
         "numeric_notes": kind.numeric_notes,
@@ -231,6 +309,7 @@ mod tests {
                 "Source",
                 "Fused op",
                 "Forms",
+                "Emitted forms (each op with the opset it needs, for float32)",
                 "Example",
                 "Numeric notes",
             ] {
@@ -254,6 +333,7 @@ mod tests {
                 "source",
                 "fused",
                 "forms",
+                "emitted",
                 "piecewise_linear",
                 "example",
                 "numeric_notes",
@@ -271,6 +351,16 @@ mod tests {
             .map(|a| a["rule"].as_str().unwrap())
             .collect();
         assert_eq!(rules, ["swish-to-hard-swish", "any-to-relu"]);
+        let emitted = v["emitted"].as_array().unwrap();
+        assert_eq!(emitted.len(), 4, "two forms, scalar and per-channel beta");
+        assert_eq!(emitted[0]["form"], "fused");
+        assert_eq!(emitted[0]["ops"][0]["op_type"], "Swish");
+        assert_eq!(emitted[0]["min_opset"], 24);
+        assert_eq!(emitted[1]["per_channel"], true);
+        assert!(emitted[1]["unavailable"].is_string());
+        assert_eq!(emitted[1]["min_opset"], Value::Null);
+        assert_eq!(emitted[3]["form"], "primitive");
+        assert_eq!(emitted[3]["min_opset"], 7);
     }
 
     #[test]

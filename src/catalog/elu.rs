@@ -1,7 +1,9 @@
 //! elu: x for x >= 0, alpha * (e^x - 1) below.
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::finite;
 use super::{FusedOp, Kind, Param};
+use crate::onnx::builder::attr_f;
 
 pub const KIND: Kind = Kind {
     id: "elu",
@@ -26,14 +28,17 @@ pub const KIND: Kind = Kind {
     source: "Clevert, Unterthiner & Hochreiter 2015, 'Fast and Accurate Deep Network Learning \
              by Exponential Linear Units (ELUs)', arXiv:1511.07289; ONNX operator schema Elu",
     forms: &[
-        "fused: Elu(x; alpha)",
-        "primitive: Where(Less(x, 0), Mul(alpha, Sub(Exp(x), 1)), x)",
+        "fused: Elu(x; alpha) (opset 6)",
+        "primitive: Add(Relu(x), Mul(Sub(Exp(Min(x, 0)), 1), alpha)) (opset 8)",
+        "also seen: Where(Less(x, 0), Mul(alpha, Sub(Exp(x), 1)), x) (the ONNX function body)",
     ],
     example: "A river-flow forecaster (invented) uses Elu(alpha = 1): elu(-1) = \
               -0.6321205588285577, elu(2) = 2.",
     numeric_notes: "The negative branch uses expm1: exp(x) - 1 loses the leading digits near \
                     0. Recovery: alpha = f(-1) / (e^-1 - 1).",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -42,4 +47,31 @@ fn reference(x: f64, p: &[f64]) -> f64 {
 
 fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     Some(vec![finite(f, -1.0)? / (-1.0f64).exp_m1()])
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let alpha = b.scalar(0)?;
+    let attrs = vec![attr_f("alpha", alpha as f32)];
+    let y = b.node(ops::ELU, "elu", &[ctx.input], attrs)?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let alpha = b.param(0, "alpha");
+    let positive = b.node(ops::RELU, "relu", &[ctx.input], vec![])?;
+    let em1 = exp_m1_of_negative_part(&mut b, ctx.input)?;
+    let negative = b.node(ops::MUL, "mul", &[&em1, &alpha], vec![])?;
+    let y = b.node(ops::ADD, "add", &[&positive, &negative], vec![])?;
+    b.finish(&y)
+}
+
+/// Exp(Min(x, 0)) - 1: 0 for x >= 0, and Exp never sees a positive argument, so it cannot
+/// overflow (exp(x) is inf above 88.72 in float32).
+pub(super) fn exp_m1_of_negative_part(b: &mut Builder, x: &str) -> Result<String, Unavailable> {
+    let (zero, one) = (b.constant("zero", 0.0), b.constant("one", 1.0));
+    let negative = b.node(ops::MIN, "min", &[x, &zero], vec![])?;
+    let e = b.node(ops::EXP, "exp", &[&negative], vec![])?;
+    b.node(ops::SUB, "sub", &[&e, &one], vec![])
 }

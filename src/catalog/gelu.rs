@@ -2,6 +2,7 @@
 
 use std::f64::consts::FRAC_1_SQRT_2;
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::{FusedOp, Kind, nothing_to_recover, smooth};
 
 pub const KIND: Kind = Kind {
@@ -36,7 +37,9 @@ pub const KIND: Kind = Kind {
              ONNX operator schema Gelu (opset 20)",
     forms: &[
         "fused: Gelu(x) (opset 20)",
-        "primitive: Mul(Mul(x, Add(Erf(Div(x, 1.4142135)), 1)), 0.5)",
+        "primitive: Mul(Mul(x, 0.5), Add(Erf(Mul(x, 0.70710678)), 1)) (opset 9); the 0.5 first, \
+         so 2 * x never overflows",
+        "also seen: Mul(Mul(x, Add(Erf(Div(x, 1.4142135)), 1)), 0.5)",
         "also seen: the same chain with the Mul 0.5 first, Mul(x, 0.70710677) instead of the \
          Div, or one 0.5 / 1 / sqrt 2 constant shared by several sites",
     ],
@@ -48,4 +51,27 @@ pub const KIND: Kind = Kind {
                     Minimum -0.16997120748 at x = -0.75179152604. The float32 sqrt(2) \
                     (1.4142135) shifts outputs by under 1e-8.",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let y = b.node(ops::GELU, "gelu", &[ctx.input], vec![])?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let (half, rsqrt2, one) = (
+        b.constant("half", 0.5),
+        b.constant("rsqrt2", FRAC_1_SQRT_2),
+        b.constant("one", 1.0),
+    );
+    let half_x = b.node(ops::MUL, "mul_half", &[ctx.input, &half], vec![])?;
+    let scaled = b.node(ops::MUL, "mul_rsqrt2", &[ctx.input, &rsqrt2], vec![])?;
+    let erf = b.node(ops::ERF, "erf", &[&scaled], vec![])?;
+    let cdf2 = b.node(ops::ADD, "add_one", &[&erf, &one], vec![])?;
+    let y = b.node(ops::MUL, "mul", &[&half_x, &cdf2], vec![])?;
+    b.finish(&y)
+}

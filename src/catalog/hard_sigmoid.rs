@@ -1,7 +1,9 @@
 //! hard_sigmoid: max(0, min(1, alpha * x + beta)).
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::{bisect, finite};
 use super::{FusedOp, Kind, Param};
+use crate::onnx::builder::attr_f;
 
 /// Recovery looks for the linear zone within +-REACH.
 const REACH: f64 = 1e6;
@@ -37,8 +39,10 @@ pub const KIND: Kind = Kind {
     source: "ONNX operator schema HardSigmoid (onnx/defs/math/defs.cc); PyTorch docs \
              (Hardsigmoid: alpha = 1/6)",
     forms: &[
-        "fused: HardSigmoid(x; alpha, beta)",
-        "primitive: Max(Min(Add(Mul(x, alpha), beta), 1), 0)",
+        "fused: HardSigmoid(x; alpha, beta) (opset 6)",
+        "primitive: Clip(Add(Mul(x, alpha), beta), 0, 1) (opset 7; Clip with attributes below \
+         11): piecewise-linear ops only",
+        "also seen: Max(Min(Add(Mul(x, alpha), beta), 1), 0) (the ONNX function body)",
         "also seen: Div(Clip(Add(x, 3), 0, 6), 6) for alpha = 1/6, beta = 0.5",
     ],
     example: "A solar-panel soiling classifier (invented) gates channels with HardSigmoid: \
@@ -48,6 +52,8 @@ pub const KIND: Kind = Kind {
                     by bisection and reads slope and offset from two points inside the linear \
                     zone.",
     piecewise_linear: true,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -80,4 +86,31 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     let alpha = (b - a) / (2.0 * h);
     let beta = (a + b) / 2.0 - alpha * mid;
     Some(vec![alpha, beta])
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let (alpha, beta) = (b.scalar(0)?, b.scalar(1)?);
+    let attrs = vec![attr_f("alpha", alpha as f32), attr_f("beta", beta as f32)];
+    let y = b.node(ops::HARD_SIGMOID, "hard_sigmoid", &[ctx.input], attrs)?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let (alpha, beta) = (b.param(0, "alpha"), b.param(1, "beta"));
+    let y = clipped_line(&mut b, ctx.input, &alpha, &beta)?;
+    b.finish(&y)
+}
+
+/// Clip(Add(Mul(x, alpha), beta), 0, 1).
+pub(super) fn clipped_line(
+    b: &mut Builder,
+    x: &str,
+    alpha: &str,
+    beta: &str,
+) -> Result<String, Unavailable> {
+    let scaled = b.node(ops::MUL, "mul_alpha", &[x, alpha], vec![])?;
+    let shifted = b.node(ops::ADD, "add_beta", &[&scaled, beta], vec![])?;
+    b.clip("clip", &shifted, 0.0, 1.0)
 }

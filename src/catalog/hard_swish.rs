@@ -1,5 +1,7 @@
 //! hard_swish: x * relu6(x + 3) / 6.
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::hard_sigmoid::clipped_line;
 use super::{FusedOp, Kind, nothing_to_recover};
 
 pub const KIND: Kind = Kind {
@@ -21,7 +23,10 @@ pub const KIND: Kind = Kind {
              (x * ReLU6(x + 3) / 6); ONNX operator schema HardSwish",
     forms: &[
         "fused: HardSwish(x) (opset 14)",
-        "primitive: Mul(x, HardSigmoid(x; alpha = 1/6, beta = 0.5))",
+        "primitive: Mul(x, Clip(Add(Mul(x, 1/6), 0.5), 0, 1)) (opset 7; Clip with attributes \
+         below 11): the ONNX function body with HardSigmoid spelled out, piecewise-linear ops \
+         only",
+        "also seen: Mul(x, HardSigmoid(x; alpha = 1/6, beta = 0.5))",
         "also seen: Div(Mul(x, Clip(Add(x, 3), 0, 6)), 6)",
     ],
     example: "A doorbell person detector for a microcontroller (invented) replaces swish by \
@@ -30,9 +35,25 @@ pub const KIND: Kind = Kind {
                     0.16666667163372; that shifts the output by at most 5e-8 on (-3, 3) \
                     and nothing outside.",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 fn reference(x: f64, _: &[f64]) -> f64 {
     // The factor first: exactly 1 for x >= 3, so the tail is exactly x.
     x * ((x + 3.0).clamp(0.0, 6.0) / 6.0)
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let y = b.node(ops::HARD_SWISH, "hard_swish", &[ctx.input], vec![])?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let (alpha, beta) = (b.constant("alpha", 1.0 / 6.0), b.constant("beta", 0.5));
+    let gate = clipped_line(&mut b, ctx.input, &alpha, &beta)?;
+    let y = b.node(ops::MUL, "mul", &[ctx.input, &gate], vec![])?;
+    b.finish(&y)
 }

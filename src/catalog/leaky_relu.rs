@@ -1,7 +1,9 @@
 //! leaky_relu: x for x >= 0, alpha * x below.
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::finite;
 use super::{FusedOp, Kind, Param};
+use crate::onnx::builder::attr_f;
 
 pub const KIND: Kind = Kind {
     id: "leaky_relu",
@@ -25,8 +27,9 @@ pub const KIND: Kind = Kind {
     source: "ONNX operator schema LeakyRelu (onnx/defs/math/defs.cc); Maas, Hannun & Ng 2013, \
              'Rectifier Nonlinearities Improve Neural Network Acoustic Models' (from memory)",
     forms: &[
-        "fused: LeakyRelu(x; alpha)",
-        "primitive: Where(Less(x, 0), Mul(x, alpha), x)",
+        "fused: LeakyRelu(x; alpha) (opset 6)",
+        "primitive: Add(Relu(x), Mul(Min(x, 0), alpha)) (opset 8)",
+        "also seen: Where(Less(x, 0), Mul(x, alpha), x) (the ONNX function body)",
         "also seen: Max(x, Mul(x, alpha)) (equal only for 0 <= alpha <= 1)",
     ],
     example: "A seismic-event classifier (invented) uses LeakyRelu(alpha = 0.2): \
@@ -34,6 +37,8 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Exact up to the rounding of alpha * x. Recovery: alpha = -f(-1). A slope of \
                     exactly 1 is the identity and is not identified.",
     piecewise_linear: true,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -44,4 +49,32 @@ fn reference(x: f64, p: &[f64]) -> f64 {
 pub fn recover_slope(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     let alpha = -finite(f, -1.0)?;
     (alpha != 1.0).then(|| vec![alpha])
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let alpha = b.scalar(0)?;
+    let attrs = vec![attr_f("alpha", alpha as f32)];
+    let y = b.node(ops::LEAKY_RELU, "leaky_relu", &[ctx.input], attrs)?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let alpha = b.param(0, "alpha");
+    let y = relu_plus_sloped_negative(&mut b, ctx.input, &alpha)?;
+    b.finish(&y)
+}
+
+/// Relu(x) + Min(x, 0) * slope: each term is 0 where the other applies, so the sum is exact.
+pub(super) fn relu_plus_sloped_negative(
+    b: &mut Builder,
+    x: &str,
+    slope: &str,
+) -> Result<String, Unavailable> {
+    let zero = b.constant("zero", 0.0);
+    let positive = b.node(ops::RELU, "relu", &[x], vec![])?;
+    let negative = b.node(ops::MIN, "min", &[x, &zero], vec![])?;
+    let sloped = b.node(ops::MUL, "mul", &[&negative, slope], vec![])?;
+    b.node(ops::ADD, "add", &[&positive, &sloped], vec![])
 }

@@ -1,6 +1,8 @@
 //! mish: x * tanh(softplus(x)).
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::softplus;
+use super::softplus::stable as stable_softplus;
 use super::{FusedOp, Kind, nothing_to_recover, smooth};
 
 pub const KIND: Kind = Kind {
@@ -22,8 +24,9 @@ pub const KIND: Kind = Kind {
              arXiv:1908.08681; ONNX operator schema Mish",
     forms: &[
         "fused: Mish(x) (opset 18)",
-        "primitive: Mul(x, Tanh(Softplus(x)))",
-        "also seen: Softplus as Log(Add(Exp(x), 1))",
+        "primitive: Mul(x, Tanh(Add(Relu(x), Log(Add(Exp(Neg(Abs(x))), 1))))) (opset 7), \
+         softplus in the form that never overflows",
+        "also seen: Mul(x, Tanh(Softplus(x))), Softplus as Log(Add(Exp(x), 1))",
     ],
     example: "A bird-song species tagger (invented) uses Mish: \
               mish(1) = 0.8650983882673103, mish(-1) = -0.3034014613741089.",
@@ -31,4 +34,20 @@ pub const KIND: Kind = Kind {
                     float32 above 88.72, where tanh(inf) = 1 still gives x. Minimum \
                     -0.308843413017 at x = -1.192431217807.",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let y = b.node(ops::MISH, "mish", &[ctx.input], vec![])?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let sp = stable_softplus(&mut b, ctx.input)?;
+    let t = b.node(ops::TANH, "tanh", &[&sp], vec![])?;
+    let y = b.node(ops::MUL, "mul", &[ctx.input, &t], vec![])?;
+    b.finish(&y)
+}

@@ -6,10 +6,14 @@
 //! function. The scanner identifies decomposed chains with [`identify`], the planner bounds
 //! substitutions with [`substitute`], and the catalogue command prints [`describe`] / [`to_json`].
 //!
-//! Adding a kind: write `src/catalog/<id>.rs` with `pub const KIND: Kind`, then add one line to
-//! [`REGISTRY`] at its match-priority position.
+//! Each kind also writes its two graph forms for a site ([`emit`]): `fused`, the one standard op,
+//! and `primitive`, a decomposition into basic ops.
+//!
+//! Adding a kind: write `src/catalog/<id>.rs` with `pub const KIND: Kind` and its emitters, then
+//! add one line to [`REGISTRY`] at its match-priority position.
 
 mod describe;
+pub mod emit;
 mod identify;
 mod numeric;
 pub mod substitute;
@@ -36,6 +40,7 @@ mod tanh;
 mod thresholded_relu;
 
 pub use describe::{describe, to_json};
+use emit::Emitter;
 pub use identify::{MATCH_RTOL, fits, identify, matches, probe_points};
 
 /// Parameter recovery from a black-box scalar function (see [`Kind::recover`]).
@@ -88,6 +93,10 @@ pub struct Kind {
     pub numeric_notes: &'static str,
     /// True when every branch of the formula is linear in x.
     pub piecewise_linear: bool,
+    /// Writes the `fused` form, the one standard op; `None` when ONNX has no op for the kind.
+    pub fused_form: Option<Emitter>,
+    /// Writes the `primitive` form, a decomposition into basic ops.
+    pub primitive_form: Emitter,
 }
 
 impl Kind {

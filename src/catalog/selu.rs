@@ -1,7 +1,10 @@
 //! selu: gamma * elu(x; alpha).
 
+use super::elu::exp_m1_of_negative_part;
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::finite;
 use super::{FusedOp, Kind, Param};
+use crate::onnx::builder::attr_f;
 
 #[allow(clippy::excessive_precision)] // the ONNX defaults, digits as the spec writes them
 pub const KIND: Kind = Kind {
@@ -38,8 +41,10 @@ pub const KIND: Kind = Kind {
              Networks', arXiv:1706.02515 (constants as given in the PyTorch docs); ONNX operator \
              schema Selu (defaults are float32 values)",
     forms: &[
-        "fused: Selu(x; alpha, gamma)",
-        "primitive: Mul(gamma, Where(Greater(x, 0), x, Mul(alpha, Sub(Exp(x), 1))))",
+        "fused: Selu(x; alpha, gamma) (opset 6)",
+        "primitive: Add(Mul(Relu(x), gamma), Mul(Sub(Exp(Min(x, 0)), 1), gamma * alpha)) \
+         (opset 8)",
+        "also seen: Mul(gamma, Where(Greater(x, 0), x, Mul(alpha, Sub(Exp(x), 1))))",
     ],
     example: "A tabular credit-default scorer (invented) stacks dense layers with Selu: \
               selu(1) = 1.0507009873554805, selu(-1) = -1.1113307378125625 with the \
@@ -49,6 +54,8 @@ pub const KIND: Kind = Kind {
                     gamma = f(1), alpha = f(-1) / (gamma * (e^-1 - 1)). With gamma = 1 the \
                     function is elu and is reported as elu.",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -60,4 +67,28 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     let gamma = finite(f, 1.0)?;
     let alpha = finite(f, -1.0)? / (gamma * (-1.0f64).exp_m1());
     (gamma != 0.0 && alpha.is_finite()).then(|| vec![alpha, gamma])
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let (alpha, gamma) = (b.scalar(0)?, b.scalar(1)?);
+    let attrs = vec![attr_f("alpha", alpha as f32), attr_f("gamma", gamma as f32)];
+    let y = b.node(ops::SELU, "selu", &[ctx.input], attrs)?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let (alpha, gamma) = (b.scalar(0)?, b.scalar(1)?);
+    // One constant gamma * alpha: one rounding fewer on the negative branch.
+    let (gamma_c, scale) = (
+        b.constant("gamma", gamma),
+        b.constant("gamma_alpha", gamma * alpha),
+    );
+    let relu = b.node(ops::RELU, "relu", &[ctx.input], vec![])?;
+    let positive = b.node(ops::MUL, "mul_gamma", &[&relu, &gamma_c], vec![])?;
+    let em1 = exp_m1_of_negative_part(&mut b, ctx.input)?;
+    let negative = b.node(ops::MUL, "mul_gamma_alpha", &[&em1, &scale], vec![])?;
+    let y = b.node(ops::ADD, "add", &[&positive, &negative], vec![])?;
+    b.finish(&y)
 }

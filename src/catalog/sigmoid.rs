@@ -1,5 +1,6 @@
 //! sigmoid: 1 / (1 + e^-x).
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::{FusedOp, Kind, nothing_to_recover, numeric, smooth};
 
 pub const KIND: Kind = Kind {
@@ -18,9 +19,9 @@ pub const KIND: Kind = Kind {
     formula: "f(x) = 1 / (1 + exp(-x))",
     source: "ONNX operator schema Sigmoid (onnx/defs/math/defs.cc)",
     forms: &[
-        "fused: Sigmoid(x)",
-        "primitive: Reciprocal(Add(Exp(Neg(x)), 1))",
-        "also seen: Div(1, Add(1, Exp(Neg(x))))",
+        "fused: Sigmoid(x) (opset 6)",
+        "primitive: Sigmoid(x) (opset 6): Sigmoid is itself a basic op",
+        "also seen: Reciprocal(Add(Exp(Neg(x)), 1)), Div(1, Add(1, Exp(Neg(x))))",
     ],
     example: "A leak detector for a water network (invented) outputs Sigmoid(logit): \
               sigmoid(0) = 0.5, sigmoid(2) = 0.8807970779778823.",
@@ -28,4 +29,20 @@ pub const KIND: Kind = Kind {
                     below. exp(x) / (1 + exp(x)) alone is NaN above x = 88.72 in float32 \
                     (88.72 = ln of the largest float32).",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    sigmoid_op(ctx, FormId::Fused)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    sigmoid_op(ctx, FormId::Primitive)
+}
+
+fn sigmoid_op(ctx: &EmitCtx, form: FormId) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, form)?;
+    let y = b.node(ops::SIGMOID, "sigmoid", &[ctx.input], vec![])?;
+    b.finish(&y)
+}

@@ -1,5 +1,6 @@
 //! silu: x * sigmoid(x), swish with beta = 1.
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::{same_f32, sigmoid};
 use super::{FusedOp, Kind, smooth, swish};
 
@@ -29,8 +30,8 @@ pub const KIND: Kind = Kind {
              Function Approximation in Reinforcement Learning', arXiv:1702.03118; \
              Ramachandran, Zoph & Le 2017, arXiv:1710.05941",
     forms: &[
-        "fused: Swish(x) (opset 24)",
-        "primitive: Mul(x, Sigmoid(x))",
+        "fused: Swish(x) (opset 24; alpha left at its default 1.0)",
+        "primitive: Mul(x, Sigmoid(x)) (opset 7)",
         "also seen: Mul(Sigmoid(x), x) (operands swapped)",
     ],
     example: "A vineyard frost-risk model (invented) exported at opset 17 has Sigmoid then Mul \
@@ -40,9 +41,24 @@ pub const KIND: Kind = Kind {
                     Identified when swish's recovered beta rounds to 1.0 in float32; any other \
                     beta is reported as swish with that beta.",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     let beta = swish::recover_beta(f)?;
     same_f32(beta[0], 1.0).then(Vec::new)
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let y = b.node(ops::SWISH, "swish", &[ctx.input], vec![])?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let s = b.node(ops::SIGMOID, "sigmoid", &[ctx.input], vec![])?;
+    let y = b.node(ops::MUL, "mul", &[ctx.input, &s], vec![])?;
+    b.finish(&y)
 }

@@ -1,5 +1,6 @@
 //! softplus: ln(1 + e^x).
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::{FusedOp, Kind, nothing_to_recover, numeric, smooth};
 
 pub const KIND: Kind = Kind {
@@ -21,8 +22,10 @@ pub const KIND: Kind = Kind {
              'Incorporating Second-Order Functional Knowledge for Better Option Pricing' \
              (from memory)",
     forms: &[
-        "fused: Softplus(x)",
-        "primitive: Log(Add(Exp(x), 1))",
+        "fused: Softplus(x) (opset 1)",
+        "primitive: Add(Relu(x), Log(Add(Exp(Neg(Abs(x))), 1))) (opset 7), which never \
+         overflows",
+        "also seen: Log(Add(Exp(x), 1)) (the ONNX function body; inf above 88.72 in float32)",
         "also seen: Where(Greater(x, 20), x, Softplus(x)) (PyTorch's threshold)",
     ],
     example: "A rainfall-intensity model (invented) keeps its scale output positive with \
@@ -32,4 +35,30 @@ pub const KIND: Kind = Kind {
                     1 + exp(x) rounds to 1; the thresholded export returns x above 20, off by \
                     at most 2.1e-9.",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let y = b.node(ops::SOFTPLUS, "softplus", &[ctx.input], vec![])?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let y = stable(&mut b, ctx.input)?;
+    b.finish(&y)
+}
+
+/// Relu(x) + Log(1 + Exp(-|x|)): Exp sees only arguments <= 0, so nothing overflows.
+pub(super) fn stable(b: &mut Builder, x: &str) -> Result<String, Unavailable> {
+    let one = b.constant("one", 1.0);
+    let positive = b.node(ops::RELU, "relu", &[x], vec![])?;
+    let abs = b.node(ops::ABS, "abs", &[x], vec![])?;
+    let neg = b.node(ops::NEG, "neg", &[&abs], vec![])?;
+    let e = b.node(ops::EXP, "exp", &[&neg], vec![])?;
+    let e1 = b.node(ops::ADD, "add_one", &[&e, &one], vec![])?;
+    let log = b.node(ops::LOG, "log", &[&e1], vec![])?;
+    b.node(ops::ADD, "add", &[&positive, &log], vec![])
+}

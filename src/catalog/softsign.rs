@@ -1,5 +1,6 @@
 //! softsign: x / (1 + |x|).
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::{FusedOp, Kind, nothing_to_recover, smooth};
 
 pub const KIND: Kind = Kind {
@@ -19,10 +20,30 @@ pub const KIND: Kind = Kind {
     source: "ONNX operator schema Softsign (onnx/defs/math/defs.cc); Glorot & Bengio 2010, \
              'Understanding the difficulty of training deep feedforward neural networks' \
              (from memory)",
-    forms: &["fused: Softsign(x)", "primitive: Div(x, Add(Abs(x), 1))"],
+    forms: &[
+        "fused: Softsign(x) (opset 1)",
+        "primitive: Div(x, Add(Abs(x), 1)) (opset 7)",
+    ],
     example: "A ski-binding load estimator (invented) squashes a residual with Softsign: \
               softsign(1) = 0.5, softsign(-3) = -0.75.",
     numeric_notes: "Rational, no overflow; tends to +-1 only like 1/|x|, so slowly that no \
                     probe range is a tail for it.",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let y = b.node(ops::SOFTSIGN, "softsign", &[ctx.input], vec![])?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let one = b.constant("one", 1.0);
+    let abs = b.node(ops::ABS, "abs", &[ctx.input], vec![])?;
+    let denominator = b.node(ops::ADD, "add", &[&abs, &one], vec![])?;
+    let y = b.node(ops::DIV, "div", &[ctx.input, &denominator], vec![])?;
+    b.finish(&y)
+}

@@ -1,7 +1,9 @@
 //! swish: x * sigmoid(beta * x).
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::{finite, logit, sigmoid};
 use super::{FusedOp, Kind, Param, smooth};
+use crate::onnx::builder::attr_f;
 
 pub const KIND: Kind = Kind {
     id: "swish",
@@ -34,8 +36,9 @@ pub const KIND: Kind = Kind {
     source: "Ramachandran, Zoph & Le 2017, 'Searching for Activation Functions', \
              arXiv:1710.05941 (beta -> 0 gives x/2, beta -> inf gives ReLU)",
     forms: &[
-        "fused: Swish(x; alpha = beta) (opset 24)",
-        "primitive: Mul(x, Sigmoid(Mul(x, beta)))",
+        "fused: Swish(x; alpha = beta) (opset 24; scalar beta only)",
+        "primitive: Mul(x, Sigmoid(Mul(x, beta))) (opset 7), beta a scalar or the per-channel \
+         tensor",
         "also seen: beta as a [C] or [1, C, 1, 1] initializer (one value per channel)",
     ],
     example: "A fish-species sonar classifier (invented) learned beta = 1.702 for its \
@@ -44,6 +47,8 @@ pub const KIND: Kind = Kind {
                     beta = logit(f(t) / t) / t at t = 1, with t shrunk when |beta| is large so \
                     that sigmoid(beta * t) stays away from 0 and 1.",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 /// beta = logit(f(t) / t) / t, retried at a smaller t until |beta * t| <= 4 (well conditioned).
@@ -66,4 +71,21 @@ pub fn recover_beta(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
         t = 1.0 / beta.abs();
     }
     None
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let beta = b.scalar(0)?;
+    let attrs = vec![attr_f("alpha", beta as f32)];
+    let y = b.node(ops::SWISH, "swish", &[ctx.input], attrs)?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let beta = b.param(0, "beta");
+    let scaled = b.node(ops::MUL, "mul_beta", &[ctx.input, &beta], vec![])?;
+    let s = b.node(ops::SIGMOID, "sigmoid", &[&scaled], vec![])?;
+    let y = b.node(ops::MUL, "mul", &[ctx.input, &s], vec![])?;
+    b.finish(&y)
 }

@@ -1,5 +1,6 @@
 //! tanh: hyperbolic tangent.
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::{FusedOp, Kind, nothing_to_recover, smooth};
 
 pub const KIND: Kind = Kind {
@@ -19,12 +20,29 @@ pub const KIND: Kind = Kind {
     formula: "f(x) = tanh(x) = (exp(x) - exp(-x)) / (exp(x) + exp(-x))",
     source: "ONNX operator schema Tanh (onnx/defs/math/defs.cc)",
     forms: &[
-        "fused: Tanh(x)",
-        "primitive: Sub(Mul(Sigmoid(Mul(x, 2)), 2), 1)",
+        "fused: Tanh(x) (opset 6)",
+        "primitive: Tanh(x) (opset 6): Tanh is itself a basic op",
+        "also seen: Sub(Mul(Sigmoid(Mul(x, 2)), 2), 1)",
     ],
     example: "A handwriting-stroke recurrent model (invented) squashes its cell state with \
               Tanh: tanh(1) = 0.7615941559557649.",
     numeric_notes: "tanh(x) = 2 * sigmoid(2x) - 1 exactly, but that form cancels near 0 \
                     (absolute error ~6e-8 in float32 instead of a relative one).",
     piecewise_linear: false,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    tanh_op(ctx, FormId::Fused)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    tanh_op(ctx, FormId::Primitive)
+}
+
+fn tanh_op(ctx: &EmitCtx, form: FormId) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, form)?;
+    let y = b.node(ops::TANH, "tanh", &[ctx.input], vec![])?;
+    b.finish(&y)
+}

@@ -1,7 +1,9 @@
 //! thresholded_relu: x above alpha, 0 elsewhere.
 
+use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
 use super::numeric::{bisect, finite};
 use super::{FusedOp, Kind, Param};
+use crate::onnx::builder::attr_f;
 
 /// Bisection bracket; its odd width keeps every midpoint off x = 0, where f is 0 for any alpha.
 const BRACKET: (f64, f64) = (-1e6, 1e6 + 1.0);
@@ -29,8 +31,8 @@ pub const KIND: Kind = Kind {
              Krueger 2014, 'Zero-bias autoencoders and the benefits of co-adapting features', \
              arXiv:1402.3337 (from memory)",
     forms: &[
-        "fused: ThresholdedRelu(x; alpha)",
-        "primitive: Where(Greater(x, alpha), x, 0)",
+        "fused: ThresholdedRelu(x; alpha) (opset 10)",
+        "primitive: Where(Greater(x, alpha), x, 0) (opset 9)",
     ],
     example: "A beehive acoustic monitor (invented) gates features with ThresholdedRelu(1.0): \
               thresholded_relu(1; 1) = 0, thresholded_relu(1.5; 1) = 1.5.",
@@ -38,6 +40,8 @@ pub const KIND: Kind = Kind {
                     to adjacent doubles and reports the last x where f is 0, so a float32 \
                     alpha is recovered exactly.",
     piecewise_linear: true,
+    fused_form: Some(fused),
+    primitive_form: primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -51,4 +55,25 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     }
     let (alpha, _) = bisect(lo, hi, |x| f(x) != 0.0);
     Some(vec![alpha])
+}
+
+fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+    let alpha = b.scalar(0)?;
+    let attrs = vec![attr_f("alpha", alpha as f32)];
+    let y = b.node(
+        ops::THRESHOLDED_RELU,
+        "thresholded_relu",
+        &[ctx.input],
+        attrs,
+    )?;
+    b.finish(&y)
+}
+
+fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+    let (alpha, zero) = (b.param(0, "alpha"), b.constant("zero", 0.0));
+    let above = b.node(ops::GREATER, "greater", &[ctx.input, &alpha], vec![])?;
+    let y = b.node(ops::WHERE, "where", &[&above, ctx.input, &zero], vec![])?;
+    b.finish(&y)
 }

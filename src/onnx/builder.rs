@@ -99,6 +99,55 @@ pub fn tensor_f32(name: &str, dims: &[i64], values: &[f32]) -> TensorProto {
     }
 }
 
+/// A float64 tensor stored little-endian in `raw_data`.
+pub fn tensor_f64(name: &str, dims: &[i64], values: &[f64]) -> TensorProto {
+    let raw: Vec<u8> = values.iter().flat_map(|v| v.to_le_bytes()).collect();
+    raw_tensor(name, dims, DataType::Double, raw)
+}
+
+/// A float16 tensor stored little-endian in `raw_data`.
+pub fn tensor_f16(name: &str, dims: &[i64], values: &[half::f16]) -> TensorProto {
+    let raw: Vec<u8> = values.iter().flat_map(|v| v.to_le_bytes()).collect();
+    raw_tensor(name, dims, DataType::Float16, raw)
+}
+
+/// A bfloat16 tensor stored little-endian in `raw_data`.
+pub fn tensor_bf16(name: &str, dims: &[i64], values: &[half::bf16]) -> TensorProto {
+    let raw: Vec<u8> = values.iter().flat_map(|v| v.to_le_bytes()).collect();
+    raw_tensor(name, dims, DataType::Bfloat16, raw)
+}
+
+/// A tensor of the floating-point type `dt` holding `values` rounded to nearest in that type;
+/// `None` when `dt` is not FLOAT, FLOAT16, DOUBLE or BFLOAT16.
+pub fn tensor_float(name: &str, dt: DataType, dims: &[i64], values: &[f64]) -> Option<TensorProto> {
+    Some(match dt {
+        DataType::Float => {
+            let v: Vec<f32> = values.iter().map(|&v| v as f32).collect();
+            tensor_f32(name, dims, &v)
+        }
+        DataType::Double => tensor_f64(name, dims, values),
+        DataType::Float16 => {
+            let v: Vec<half::f16> = values.iter().map(|&v| half::f16::from_f64(v)).collect();
+            tensor_f16(name, dims, &v)
+        }
+        DataType::Bfloat16 => {
+            let v: Vec<half::bf16> = values.iter().map(|&v| half::bf16::from_f64(v)).collect();
+            tensor_bf16(name, dims, &v)
+        }
+        _ => return None,
+    })
+}
+
+fn raw_tensor(name: &str, dims: &[i64], dt: DataType, raw: Vec<u8>) -> TensorProto {
+    TensorProto {
+        name: Some(name.into()),
+        dims: dims.to_vec(),
+        data_type: Some(dt as i32),
+        raw_data: Some(Bytes::from(raw)),
+        ..Default::default()
+    }
+}
+
 /// An int64 tensor stored little-endian in `raw_data`.
 pub fn tensor_i64(name: &str, dims: &[i64], values: &[i64]) -> TensorProto {
     let raw: Vec<u8> = values.iter().flat_map(|v| v.to_le_bytes()).collect();

@@ -18,13 +18,15 @@ fn graph(nodes: usize) -> Model {
         input: vec![value("x0", DataType::Float, &[Dim::Size(1), Dim::Size(16)])],
         ..Default::default()
     };
-    g.initializer.push(tensor_f32("sqrt2", &[], &[std::f32::consts::SQRT_2]));
+    g.initializer
+        .push(tensor_f32("sqrt2", &[], &[std::f32::consts::SQRT_2]));
     g.initializer.push(tensor_f32("one", &[], &[1.0]));
     g.initializer.push(tensor_f32("half", &[], &[0.5]));
     let mut x = "x0".to_string();
     for b in 0..nodes / BLOCK {
         let t = |s: &str| format!("b{b}.{s}");
-        g.initializer.push(tensor_f32(&t("w"), &[], &[1.0 + (b % 7) as f32 * 0.01]));
+        g.initializer
+            .push(tensor_f32(&t("w"), &[], &[1.0 + (b % 7) as f32 * 0.01]));
         let steps: [(&str, &str, Vec<String>); BLOCK] = [
             ("Mul", "lin", vec![x.clone(), t("w")]),
             ("Sigmoid", "sig", vec![t("lin")]),
@@ -39,18 +41,26 @@ fn graph(nodes: usize) -> Model {
         ];
         for (op, name, inputs) in steps {
             let inputs: Vec<&str> = inputs.iter().map(String::as_str).collect();
-            g.node.push(node(op, &t(name), &inputs, &[&t(name)], vec![]));
+            g.node
+                .push(node(op, &t(name), &inputs, &[&t(name)], vec![]));
         }
         x = t("gate");
     }
-    g.output.push(value(&x, DataType::Float, &[Dim::Size(1), Dim::Size(16)]));
-    Model::from_proto(model(g, vec![opset("", 13)], "bench"), std::path::PathBuf::from("."))
+    g.output
+        .push(value(&x, DataType::Float, &[Dim::Size(1), Dim::Size(16)]));
+    Model::from_proto(
+        model(g, vec![opset("", 13)], "bench"),
+        std::path::PathBuf::from("."),
+    )
 }
 
 fn main() {
     let sizes = [10_000usize, 100_000, 1_000_000];
     let mut times = Vec::new();
-    println!("{:>10}  {:>10}  {:>8}  {:>12}", "nodes", "seconds", "sites", "ns per node");
+    println!(
+        "{:>10}  {:>10}  {:>8}  {:>12}",
+        "nodes", "seconds", "sites", "ns per node"
+    );
     for &n in &sizes {
         let model = graph(n);
         let start = Instant::now();
@@ -58,7 +68,10 @@ fn main() {
         let report = actswap::scan::scan(&index);
         let secs = start.elapsed().as_secs_f64();
         let per_node = secs * 1e9 / n as f64;
-        println!("{n:>10}  {secs:>10.3}  {:>8}  {per_node:>12.0}", report.sites.len());
+        println!(
+            "{n:>10}  {secs:>10.3}  {:>8}  {per_node:>12.0}",
+            report.sites.len()
+        );
         times.push(secs);
     }
     for i in 1..sizes.len() {

@@ -21,7 +21,10 @@ fn root() -> PathBuf {
 }
 
 fn swap(model: &Model, requests: &[&str]) -> (Model, Plan) {
-    let requests: Vec<Request> = requests.iter().map(|r| Request::parse(r).unwrap()).collect();
+    let requests: Vec<Request> = requests
+        .iter()
+        .map(|r| Request::parse(r).unwrap())
+        .collect();
     let index = ModelIndex::build(model).unwrap();
     let sites = scan::scan(&index).sites;
     let plan = Plan::build(&index, sites, &Policy::Requests(&requests));
@@ -42,7 +45,8 @@ fn check_against_expected(model: &Model, dir: &Path) -> Option<String> {
             let g = to_f64_array(&got.name, &got.tensor).unwrap();
             let w = to_f64_array("expected", &want).unwrap();
             for (a, b) in g.iter().zip(w.iter()) {
-                let ok = a == b || (a.is_nan() && b.is_nan()) || (a - b).abs() <= 1e-5 + 1e-5 * b.abs();
+                let ok =
+                    a == b || (a.is_nan() && b.is_nan()) || (a - b).abs() <= 1e-5 + 1e-5 * b.abs();
                 if !ok {
                     return Some(format!("got {a}, expected {b}"));
                 }
@@ -60,7 +64,8 @@ fn check_against_expected(model: &Model, dir: &Path) -> Option<String> {
 #[test]
 fn conformance_cases_survive_a_change_of_form() {
     let dir = root().join("tests/fixtures/conformance");
-    let manifest: Value = serde_json::from_slice(&std::fs::read(dir.join("manifest.json")).unwrap()).unwrap();
+    let manifest: Value =
+        serde_json::from_slice(&std::fs::read(dir.join("manifest.json")).unwrap()).unwrap();
     let mut checked = 0;
     let mut failures = Vec::new();
     for case in manifest["cases"].as_array().unwrap() {
@@ -71,11 +76,22 @@ fn conformance_cases_survive_a_change_of_form() {
         }
         let case_dir = dir.join(case["dir"].as_str().unwrap());
         let model = Model::load(&case_dir.join("model.onnx")).unwrap();
-        let to = if case["expanded"].as_bool().unwrap() { "*=fused" } else { "*=primitive" };
+        let to = if case["expanded"].as_bool().unwrap() {
+            "*=fused"
+        } else {
+            "*=primitive"
+        };
         let (out, plan) = swap(&model, &[to]);
         let rewritten = plan.rewrites().count();
-        let kept_same_ops = plan.sites.iter().all(|p| matches!(p.action, actswap::plan::Action::Keep { .. }));
-        assert!(rewritten == 1 || kept_same_ops, "{name}: {:?}", plan.to_json());
+        let kept_same_ops = plan
+            .sites
+            .iter()
+            .all(|p| matches!(p.action, actswap::plan::Action::Keep { .. }));
+        assert!(
+            rewritten == 1 || kept_same_ops,
+            "{name}: {:?}",
+            plan.to_json()
+        );
         if let Some(p) = check_against_expected(&out, &case_dir) {
             failures.push(format!("{name} ({to}): {p}"));
         }
@@ -92,8 +108,14 @@ fn untouched_messages_stay_byte_for_byte() {
     let model = Model::load(&src).unwrap();
     let (out, plan) = swap(&model, &["silu=hard_swish", "mish=primitive"]);
     assert_eq!(plan.rewrites().count(), 2);
-    let (a, b) = (model.proto().graph.as_ref().unwrap(), out.proto().graph.as_ref().unwrap());
-    let removed: Vec<usize> = plan.rewrites().flat_map(|(s, _)| s.node_indices.clone()).collect();
+    let (a, b) = (
+        model.proto().graph.as_ref().unwrap(),
+        out.proto().graph.as_ref().unwrap(),
+    );
+    let removed: Vec<usize> = plan
+        .rewrites()
+        .flat_map(|(s, _)| s.node_indices.clone())
+        .collect();
     let kept: Vec<Vec<u8>> = a
         .node
         .iter()
@@ -109,7 +131,11 @@ fn untouched_messages_stay_byte_for_byte() {
     let used_elsewhere = |name: &str| b.node.iter().any(|n| n.input.iter().any(|i| i == name));
     for t in &a.initializer {
         if used_elsewhere(t.name()) {
-            assert!(after_inits.contains(&t.encode_to_vec()), "initializer {} changed", t.name());
+            assert!(
+                after_inits.contains(&t.encode_to_vec()),
+                "initializer {} changed",
+                t.name()
+            );
         }
     }
     for (x, y) in [(&a.input, &b.input), (&a.output, &b.output)] {
@@ -143,9 +169,18 @@ fn a_second_swap_changes_nothing() {
         out.save(&first, &Default::default()).unwrap();
         let again = Model::load(&first).unwrap();
         let (out2, plan) = swap(&again, &[to]);
-        assert_eq!(plan.rewrites().count(), 0, "{model} {to}: {:?}", plan.to_json());
+        assert_eq!(
+            plan.rewrites().count(),
+            0,
+            "{model} {to}: {:?}",
+            plan.to_json()
+        );
         out2.save(&second, &Default::default()).unwrap();
-        assert_eq!(std::fs::read(&first).unwrap(), std::fs::read(&second).unwrap(), "{model} {to}");
+        assert_eq!(
+            std::fs::read(&first).unwrap(),
+            std::fs::read(&second).unwrap(),
+            "{model} {to}"
+        );
     }
 }
 
@@ -156,14 +191,21 @@ fn per_channel_parameters_stay_per_channel() {
     let (out, plan) = swap(&m, &["swish=primitive", "silu=swish"]);
     let _ = plan;
     let index = ModelIndex::build(&out).unwrap();
-    let site = scan::scan(&index).sites.into_iter().find(|s| s.output == "block1.act").unwrap();
+    let site = scan::scan(&index)
+        .sites
+        .into_iter()
+        .find(|s| s.output == "block1.act")
+        .unwrap();
     assert_eq!(site.param_shape, Some(vec![1, 12, 1, 1]));
     assert!(matches!(site.params["beta"], scan::ParamValue::PerChannel(ref v) if v.len() == 12));
     assert_eq!(FormId::Primitive.name(), "primitive");
 }
 
 fn actswap(args: &[&str]) -> (i32, String, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_actswap")).args(args).output().unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_actswap"))
+        .args(args)
+        .output()
+        .unwrap();
     (
         out.status.code().unwrap_or(-1),
         String::from_utf8_lossy(&out.stdout).into(),
@@ -180,19 +222,57 @@ fn bad_requests_fail_cleanly_and_write_nothing() {
     let model = root().join("sample-models/orchard-grader.onnx");
     let m = model.to_str().unwrap();
     let bad_profile = dir.path().join("bad.toml");
-    std::fs::write(&bad_profile, "name = \"x\"\nmax_opset = \"thirteen\"\n[ops]\nRelu = \"*\"\n").unwrap();
+    std::fs::write(
+        &bad_profile,
+        "name = \"x\"\nmax_opset = \"thirteen\"\n[ops]\nRelu = \"*\"\n",
+    )
+    .unwrap();
     let bad_range = dir.path().join("range.toml");
     std::fs::write(&bad_range, "name = \"x\"\n[ops]\nRelu = \"9-3\"\n").unwrap();
     let cases: Vec<(Vec<&str>, &str)> = vec![
-        (vec!["swap", m, "-o", o, "--to", "sillu=fused"], "unknown kind 'sillu'"),
-        (vec!["swap", m, "-o", o, "--to", "silu=fusd"], "unknown kind 'fusd'"),
-        (vec!["swap", m, "-o", o, "--to", "silu=hard_swish:fusd"], "unknown form 'fusd'"),
-        (vec!["swap", m, "-o", o, "--to", "silu"], "expected KIND=FORM"),
-        (vec!["swap", m, "-o", o, "--target", bad_profile.to_str().unwrap()], "line 2"),
-        (vec!["swap", m, "-o", o, "--target", bad_range.to_str().unwrap()], "line 3"),
-        (vec!["swap", m, "-o", o, "--target", "no-such-target"], "no target profile"),
-        (vec!["swap", m, "-o", o, "--to", "*=primitive", "--site", "s99"], "no site 's99'"),
-        (vec!["swap", m, "-o", m, "--to", "*=primitive"], "refusing to overwrite"),
+        (
+            vec!["swap", m, "-o", o, "--to", "sillu=fused"],
+            "unknown kind 'sillu'",
+        ),
+        (
+            vec!["swap", m, "-o", o, "--to", "silu=fusd"],
+            "unknown kind 'fusd'",
+        ),
+        (
+            vec!["swap", m, "-o", o, "--to", "silu=hard_swish:fusd"],
+            "unknown form 'fusd'",
+        ),
+        (
+            vec!["swap", m, "-o", o, "--to", "silu"],
+            "expected KIND=FORM",
+        ),
+        (
+            vec![
+                "swap",
+                m,
+                "-o",
+                o,
+                "--target",
+                bad_profile.to_str().unwrap(),
+            ],
+            "line 2",
+        ),
+        (
+            vec!["swap", m, "-o", o, "--target", bad_range.to_str().unwrap()],
+            "line 3",
+        ),
+        (
+            vec!["swap", m, "-o", o, "--target", "no-such-target"],
+            "no target profile",
+        ),
+        (
+            vec!["swap", m, "-o", o, "--to", "*=primitive", "--site", "s99"],
+            "no site 's99'",
+        ),
+        (
+            vec!["swap", m, "-o", m, "--to", "*=primitive"],
+            "refusing to overwrite",
+        ),
     ];
     for (args, want) in cases {
         let (code, _, err) = actswap(&args);
@@ -220,7 +300,12 @@ fn a_form_above_the_model_opset_is_unserved() {
     ]);
     assert_eq!(code, 1, "{stdout}");
     let v: Value = serde_json::from_str(&stdout).unwrap();
-    let s = v["sites"].as_array().unwrap().iter().find(|s| s["kind"] == "silu").unwrap();
+    let s = v["sites"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|s| s["kind"] == "silu")
+        .unwrap();
     assert_eq!(s["action"], "unserved");
     assert!(s["reason"].as_str().unwrap().contains("opset"), "{s}");
 }

@@ -24,7 +24,12 @@ pub struct Args {
     /// The ONNX model file (never modified unless --overwrite and -o name it).
     model: PathBuf,
     /// Where to write the converted model.
-    #[arg(short = 'o', long = "output", value_name = "OUT", required_unless_present = "dry_run")]
+    #[arg(
+        short = 'o',
+        long = "output",
+        value_name = "OUT",
+        required_unless_present = "dry_run"
+    )]
     output: Option<PathBuf>,
     /// A conversion: KIND=FORM, KIND=SUBSTITUTE or KIND=SUBSTITUTE:FORM; KIND may be '*'.
     #[arg(long = "to", value_name = "KIND=FORM", conflicts_with = "target")]
@@ -47,7 +52,11 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> Result<ExitCode> {
-    let requests: Vec<Request> = args.to.iter().map(|t| Request::parse(t)).collect::<Result<_>>()?;
+    let requests: Vec<Request> = args
+        .to
+        .iter()
+        .map(|t| Request::parse(t))
+        .collect::<Result<_>>()?;
     let profile = args.target.as_deref().map(Profile::load).transpose()?;
     if requests.is_empty() && profile.is_none() {
         bail!("say what to convert to: --to KIND=FORM (repeatable) or --target PROFILE");
@@ -58,14 +67,20 @@ pub fn run(args: Args) -> Result<ExitCode> {
         && out.canonicalize().ok() == args.model.canonicalize().ok()
         && out.exists()
     {
-        bail!("output '{}' is the input model; refusing to overwrite it (use --overwrite)", out.display());
+        bail!(
+            "output '{}' is the input model; refusing to overwrite it (use --overwrite)",
+            out.display()
+        );
     }
     let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
     let mut sites = scan::scan(&index).sites;
     if !args.sites.is_empty() {
         for id in &args.sites {
             if !sites.iter().any(|s| &s.id == id) {
-                bail!("no site '{id}' in '{}' (see `actswap scan`)", args.model.display());
+                bail!(
+                    "no site '{id}' in '{}' (see `actswap scan`)",
+                    args.model.display()
+                );
             }
         }
         sites.retain(|s| args.sites.contains(&s.id));
@@ -80,7 +95,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
         output::print(&plan_table::render(&plan))?;
     }
     if !args.dry_run {
-        let out = args.output.as_ref().expect("clap requires -o without --dry-run");
+        let out = args
+            .output
+            .as_ref()
+            .expect("clap requires -o without --dry-run");
         let (rewritten, applied) = rewrite::apply(&model, &index, &plan)?;
         let opts = SaveOptions {
             overwrite_input: args.overwrite,
@@ -93,11 +111,20 @@ pub fn run(args: Args) -> Result<ExitCode> {
             .map(|a| serde_json::json!({"site": a.site, "output": a.output, "nodes": a.nodes, "constants": a.constants}))
             .collect();
         if !args.json {
-            output::print(&format!("wrote {} ({} site{} rewritten)\n", out.display(), applied.len(), if applied.len() == 1 { "" } else { "s" }))?;
+            output::print(&format!(
+                "wrote {} ({} site{} rewritten)\n",
+                out.display(),
+                applied.len(),
+                if applied.len() == 1 { "" } else { "s" }
+            ))?;
         }
     }
     if args.json {
         output::print_json(&json)?;
     }
-    Ok(if plan.unserved() > 0 { ExitCode::from(EXIT_OVER_BUDGET) } else { ExitCode::SUCCESS })
+    Ok(if plan.unserved() > 0 {
+        ExitCode::from(EXIT_OVER_BUDGET)
+    } else {
+        ExitCode::SUCCESS
+    })
 }

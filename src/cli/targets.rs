@@ -38,6 +38,15 @@ pub fn run(args: Args) -> Result<ExitCode> {
             p.description,
         ]);
     }
-    output::print(&table::render(&["name", "max opset", "max approx error", "accepts", "description"], &rows))?;
+    output::print(&table::render(
+        &[
+            "name",
+            "max opset",
+            "max approx error",
+            "accepts",
+            "description",
+        ],
+        &rows,
+    ))?;
     Ok(ExitCode::SUCCESS)
 }

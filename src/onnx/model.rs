@@ -270,6 +270,14 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
         .prefix(".actswap-")
         .tempfile_in(dir)
         .with_context(|| format!("cannot create a temporary file in '{}'", dir.display()))?;
+    // tempfile creates files readable by their owner only; a model is an ordinary file.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        tmp.as_file()
+            .set_permissions(std::fs::Permissions::from_mode(0o644))
+            .with_context(|| format!("cannot write '{}'", path.display()))?;
+    }
     tmp.write_all(bytes)
         .and_then(|_| tmp.as_file().sync_all())
         .with_context(|| format!("cannot write '{}'", path.display()))?;

@@ -90,7 +90,10 @@ impl Plan {
 
     /// Sites no accepted form can serve.
     pub fn unserved(&self) -> usize {
-        self.sites.iter().filter(|p| matches!(p.action, Action::Unserved { .. })).count()
+        self.sites
+            .iter()
+            .filter(|p| matches!(p.action, Action::Unserved { .. }))
+            .count()
     }
 
     /// Sites to rewrite.
@@ -162,17 +165,19 @@ pub fn bound_json(b: &ErrorBound) -> Value {
     json!({"max_abs": num(b.value), "at": num(b.at)})
 }
 
-const EXACT: ErrorBound = ErrorBound { value: 0.0, at: 0.0 };
+const EXACT: ErrorBound = ErrorBound {
+    value: 0.0,
+    at: 0.0,
+};
 
 fn plan_site(index: &ModelIndex, site: &Site, policy: &Policy) -> Action {
     let kind = catalog::get(&site.kind).expect("scanner kinds are catalogue kinds");
     let graph = &index.graphs[site.graph_index];
     let opset = graph.opset("").unwrap_or(1);
     let accepted_now = |p: &Profile| {
-        site.ops
-            .iter()
-            .zip(&site.node_indices)
-            .all(|(op, &n)| matches!(graph.nodes[n].domain(), "" | "ai.onnx") && p.accepts(op, opset))
+        site.ops.iter().zip(&site.node_indices).all(|(op, &n)| {
+            matches!(graph.nodes[n].domain(), "" | "ai.onnx") && p.accepts(op, opset)
+        })
     };
     if site.params.len() != kind.params.len() {
         return match policy {
@@ -220,7 +225,14 @@ fn plan_site(index: &ModelIndex, site: &Site, policy: &Policy) -> Action {
                 }
                 match ctx.emit_ops(to, &params, form) {
                     Ok(ops) => {
-                        return Action::Rewrite(Target { kind: to, params, form, rule, bound, ops });
+                        return Action::Rewrite(Target {
+                            kind: to,
+                            params,
+                            form,
+                            rule,
+                            bound,
+                            ops,
+                        });
                     }
                     Err(e) => reasons.push(format!("{}:{form}: {e}", to.id)),
                 }
@@ -268,7 +280,10 @@ fn plan_site(index: &ModelIndex, site: &Site, policy: &Policy) -> Action {
             for (to, params, rule, bound) in candidates_for(kind, site, None) {
                 if bound.value > p.max_approx_error {
                     if rule.is_some() {
-                        reasons.push(format!("{}: error {:.4} over the allowance", to.id, bound.value));
+                        reasons.push(format!(
+                            "{}: error {:.4} over the allowance",
+                            to.id, bound.value
+                        ));
                     }
                     continue;
                 }
@@ -276,7 +291,14 @@ fn plan_site(index: &ModelIndex, site: &Site, policy: &Policy) -> Action {
                     match ctx.emit_ops(to, &params, form) {
                         Ok(ops) => match ops.iter().find(|o| !p.accepts(o, opset)) {
                             None => {
-                                return Action::Rewrite(Target { kind: to, params, form, rule, bound, ops });
+                                return Action::Rewrite(Target {
+                                    kind: to,
+                                    params,
+                                    form,
+                                    rule,
+                                    bound,
+                                    ops,
+                                });
                             }
                             Some(o) => reasons.push(format!("{}:{form}: {o} not accepted", to.id)),
                         },
@@ -291,7 +313,12 @@ fn plan_site(index: &ModelIndex, site: &Site, policy: &Policy) -> Action {
     }
 }
 
-type Candidate = (&'static Kind, Vec<ParamValue>, Option<&'static str>, ErrorBound);
+type Candidate = (
+    &'static Kind,
+    Vec<ParamValue>,
+    Option<&'static str>,
+    ErrorBound,
+);
 
 /// Replacement kinds for a site: its own kind first (exact), then the catalogue's substitutions
 /// by increasing worst-case error. With `only`, just that kind.
@@ -307,7 +334,10 @@ fn candidates_for(kind: &'static Kind, site: &Site, only: Option<&'static Kind>)
         .filter_map(|r| {
             let channels = per_channel_values(&own);
             let mut targets: Vec<Vec<f64>> = Vec::new();
-            let mut worst = ErrorBound { value: 0.0, at: 0.0 };
+            let mut worst = ErrorBound {
+                value: 0.0,
+                at: 0.0,
+            };
             for from in &channels {
                 let to = r.target_params(from)?;
                 let b = r.error_over_reals(kind, from)?;
@@ -329,7 +359,12 @@ fn candidates_for(kind: &'static Kind, site: &Site, only: Option<&'static Kind>)
 fn site_params(site: &Site, kind: &Kind) -> Vec<ParamValue> {
     kind.params
         .iter()
-        .map(|p| site.params.get(p.name).cloned().unwrap_or(ParamValue::Scalar(p.default)))
+        .map(|p| {
+            site.params
+                .get(p.name)
+                .cloned()
+                .unwrap_or(ParamValue::Scalar(p.default))
+        })
         .collect()
 }
 
@@ -411,7 +446,12 @@ impl SiteCtx {
     }
 
     /// The op types `kind`'s `form` would emit here, or why it cannot.
-    fn emit_ops(&self, kind: &Kind, params: &[ParamValue], form: FormId) -> Result<Vec<String>, emit::Unavailable> {
+    fn emit_ops(
+        &self,
+        kind: &Kind,
+        params: &[ParamValue],
+        form: FormId,
+    ) -> Result<Vec<String>, emit::Unavailable> {
         let args = self.args(params);
         let ctx = EmitCtx {
             input: "x",
@@ -456,7 +496,12 @@ fn element_type(index: &ModelIndex, site: &Site) -> DataType {
                 .iter()
                 .find_map(|c| index.constant(site.graph_index, c))
                 .map(|v| v.data_type)
-                .filter(|t| matches!(t, DataType::Float | DataType::Float16 | DataType::Double | DataType::Bfloat16))
+                .filter(|t| {
+                    matches!(
+                        t,
+                        DataType::Float | DataType::Float16 | DataType::Double | DataType::Bfloat16
+                    )
+                })
         })
         .unwrap_or(DataType::Float)
 }

@@ -55,18 +55,30 @@ impl<'de> Deserialize<'de> for OpsetRange {
 fn parse_range(text: &str) -> Result<OpsetRange, String> {
     let t = text.trim();
     let num = |s: &str| {
-        s.trim()
-            .parse::<i64>()
-            .map_err(|_| format!("'{text}' is not an opset range (use \"*\", \">=N\", \"<=N\" or \"N-M\")"))
+        s.trim().parse::<i64>().map_err(|_| {
+            format!("'{text}' is not an opset range (use \"*\", \">=N\", \"<=N\" or \"N-M\")")
+        })
     };
     let r = if t == "*" {
-        OpsetRange { min: 1, max: i64::MAX }
+        OpsetRange {
+            min: 1,
+            max: i64::MAX,
+        }
     } else if let Some(n) = t.strip_prefix(">=") {
-        OpsetRange { min: num(n)?, max: i64::MAX }
+        OpsetRange {
+            min: num(n)?,
+            max: i64::MAX,
+        }
     } else if let Some(n) = t.strip_prefix("<=") {
-        OpsetRange { min: 1, max: num(n)? }
+        OpsetRange {
+            min: 1,
+            max: num(n)?,
+        }
     } else if let Some((a, b)) = t.split_once('-') {
-        OpsetRange { min: num(a)?, max: num(b)? }
+        OpsetRange {
+            min: num(a)?,
+            max: num(b)?,
+        }
     } else {
         let n = num(t)?;
         OpsetRange { min: n, max: n }
@@ -95,7 +107,8 @@ pub struct Profile {
 impl Profile {
     /// True when the target runs `op` (default domain) at `opset`.
     pub fn accepts(&self, op: &str, opset: i64) -> bool {
-        self.max_opset.is_none_or(|m| opset <= m) && self.ops.get(op).is_some_and(|r| r.contains(opset))
+        self.max_opset.is_none_or(|m| opset <= m)
+            && self.ops.get(op).is_some_and(|r| r.contains(opset))
     }
 
     /// Parses profile text; errors name the line and the reason.
@@ -107,7 +120,7 @@ impl Profile {
                 .unwrap_or(0);
             anyhow::anyhow!("profile {origin}, line {line}: {}", e.message())
         })?;
-        if !(p.max_approx_error >= 0.0) {
+        if p.max_approx_error.is_nan() || p.max_approx_error < 0.0 {
             bail!("profile {origin}: max_approx_error must be a number >= 0");
         }
         Ok(p)
@@ -134,7 +147,16 @@ impl Profile {
 
 /// The built-in profiles, by name (the files are in profiles/).
 pub const BUILT_IN: &[(&str, &str)] = &[
-    ("core-opset13", include_str!("../../profiles/core-opset13.toml")),
-    ("piecewise-linear", include_str!("../../profiles/piecewise-linear.toml")),
-    ("fused-latest", include_str!("../../profiles/fused-latest.toml")),
+    (
+        "core-opset13",
+        include_str!("../../profiles/core-opset13.toml"),
+    ),
+    (
+        "piecewise-linear",
+        include_str!("../../profiles/piecewise-linear.toml"),
+    ),
+    (
+        "fused-latest",
+        include_str!("../../profiles/fused-latest.toml"),
+    ),
 ];

@@ -64,7 +64,10 @@ fn kind(id: &str, text: &str) -> Result<&'static Kind> {
     let id = id.trim();
     catalog::get(id).ok_or_else(|| {
         let ids: Vec<&str> = catalog::all().iter().map(|k| k.id).collect();
-        anyhow::anyhow!("--to '{text}': unknown kind '{id}' (known: {})", ids.join(", "))
+        anyhow::anyhow!(
+            "--to '{text}': unknown kind '{id}' (known: {})",
+            ids.join(", ")
+        )
     })
 }
 

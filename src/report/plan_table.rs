@@ -11,10 +11,18 @@ pub fn render(plan: &Plan) -> String {
         .iter()
         .map(|p| {
             let s = &p.site;
-            let from = format!("{} ({})", format!("{:?}", s.form).to_lowercase(), s.ops.join(" "));
+            let from = format!(
+                "{} ({})",
+                format!("{:?}", s.form).to_lowercase(),
+                s.ops.join(" ")
+            );
             let (action, to, bound, why) = match &p.action {
-                Action::Keep { reason } => ("keep", "-".to_string(), "-".to_string(), reason.clone()),
-                Action::Unserved { reason } => ("UNSERVED", "-".to_string(), "-".to_string(), reason.clone()),
+                Action::Keep { reason } => {
+                    ("keep", "-".to_string(), "-".to_string(), reason.clone())
+                }
+                Action::Unserved { reason } => {
+                    ("UNSERVED", "-".to_string(), "-".to_string(), reason.clone())
+                }
                 Action::Rewrite(t) => {
                     let params: Vec<String> = t
                         .kind
@@ -22,8 +30,12 @@ pub fn render(plan: &Plan) -> String {
                         .iter()
                         .zip(&t.params)
                         .map(|(p, v)| match v {
-                            ParamValue::Scalar(x) => format!("{}={}", p.name, (x * 1e6).round() / 1e6),
-                            ParamValue::PerChannel(xs) => format!("{}=[{} per channel]", p.name, xs.len()),
+                            ParamValue::Scalar(x) => {
+                                format!("{}={}", p.name, (x * 1e6).round() / 1e6)
+                            }
+                            ParamValue::PerChannel(xs) => {
+                                format!("{}=[{} per channel]", p.name, xs.len())
+                            }
                         })
                         .collect();
                     let kind = if params.is_empty() {
@@ -38,10 +50,23 @@ pub fn render(plan: &Plan) -> String {
                     } else {
                         "unbounded".into()
                     };
-                    ("rewrite", format!("{kind}:{} ({})", t.form, t.ops.join(" ")), bound, t.rule.unwrap_or("").to_string())
+                    (
+                        "rewrite",
+                        format!("{kind}:{} ({})", t.form, t.ops.join(" ")),
+                        bound,
+                        t.rule.unwrap_or("").to_string(),
+                    )
                 }
             };
-            vec![s.id.clone(), s.kind.clone(), from, action.into(), to, bound, why]
+            vec![
+                s.id.clone(),
+                s.kind.clone(),
+                from,
+                action.into(),
+                to,
+                bound,
+                why,
+            ]
         })
         .collect();
     let mut out = String::new();
@@ -49,7 +74,15 @@ pub fn render(plan: &Plan) -> String {
         out.push_str(&format!("warning: {w}\n"));
     }
     out.push_str(&table::render(
-        &["site", "kind", "from", "action", "to", "worst-case error", "rule / reason"],
+        &[
+            "site",
+            "kind",
+            "from",
+            "action",
+            "to",
+            "worst-case error",
+            "rule / reason",
+        ],
         &rows,
     ));
     out.push_str(&format!(
@@ -57,7 +90,10 @@ pub fn render(plan: &Plan) -> String {
         plan.sites.len(),
         if plan.sites.len() == 1 { "" } else { "s" },
         plan.rewrites().count(),
-        plan.sites.iter().filter(|p| matches!(p.action, Action::Keep { .. })).count(),
+        plan.sites
+            .iter()
+            .filter(|p| matches!(p.action, Action::Keep { .. }))
+            .count(),
         plan.unserved()
     ));
     out

@@ -3,7 +3,9 @@
 use std::collections::HashSet;
 
 use crate::onnx::GraphLocation;
-use crate::onnx::proto::{FunctionProto, GraphProto, ModelProto, NodeProto, TensorProto, ValueInfoProto};
+use crate::onnx::proto::{
+    FunctionProto, GraphProto, ModelProto, NodeProto, TensorProto, ValueInfoProto,
+};
 
 /// A graph or a function body.
 pub enum GraphMut<'a> {
@@ -62,7 +64,10 @@ impl<'a> GraphMut<'a> {
     pub fn referenced_names(&mut self) -> HashSet<String> {
         let mut names = HashSet::new();
         let (nodes, outputs): (&[NodeProto], Vec<String>) = match self {
-            GraphMut::Graph(g) => (&g.node, g.output.iter().map(|v| v.name().to_string()).collect()),
+            GraphMut::Graph(g) => (
+                &g.node,
+                g.output.iter().map(|v| v.name().to_string()).collect(),
+            ),
             GraphMut::Function(f) => (&f.node, f.output.clone()),
         };
         names.extend(outputs);

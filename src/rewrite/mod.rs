@@ -57,7 +57,11 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
         };
         let mut attempt = 1;
         let emitted = loop {
-            let prefix = if attempt == 1 { base.clone() } else { format!("{base}.{attempt}") };
+            let prefix = if attempt == 1 {
+                base.clone()
+            } else {
+                format!("{base}.{attempt}")
+            };
             let ectx = EmitCtx {
                 input: &site.input,
                 output: &site.output,
@@ -68,7 +72,10 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
             };
             let e = emit::emit(target.kind, target.form, &ectx)
                 .with_context(|| format!("site {} ({}) in {}", site.id, site.kind, site.graph))?;
-            if new_names(&e, &site.output).iter().all(|n| !taken.contains(n)) {
+            if new_names(&e, &site.output)
+                .iter()
+                .all(|n| !taken.contains(n))
+            {
                 break e;
             }
             attempt += 1;
@@ -80,14 +87,24 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
                 .initializers
                 .iter()
                 .map(|t| {
-                    builder::node("Constant", t.name(), &[], &[t.name()], vec![builder::attr_t("value", t.clone())])
+                    builder::node(
+                        "Constant",
+                        t.name(),
+                        &[],
+                        &[t.name()],
+                        vec![builder::attr_t("value", t.clone())],
+                    )
                 })
                 .collect();
             let names = consts.iter().map(|n| n.name().to_string()).collect();
             consts.extend(emitted.nodes.iter().cloned());
             (consts, Vec::new(), names)
         } else {
-            let names = emitted.initializers.iter().map(|t| t.name().to_string()).collect();
+            let names = emitted
+                .initializers
+                .iter()
+                .map(|t| t.name().to_string())
+                .collect();
             (emitted.nodes.clone(), emitted.initializers.clone(), names)
         };
         applied.push(Applied {
@@ -148,7 +165,10 @@ fn all_names(index: &ModelIndex) -> HashSet<String> {
 
 /// Applies a graph's patches in one pass, then drops constants nothing reads any more.
 fn apply_patches(g: &mut GraphMut, patches: Vec<Patch>) {
-    let removed: HashSet<usize> = patches.iter().flat_map(|p| p.remove.iter().copied()).collect();
+    let removed: HashSet<usize> = patches
+        .iter()
+        .flat_map(|p| p.remove.iter().copied())
+        .collect();
     let mut insert_at: BTreeMap<usize, Vec<NodeProto>> = BTreeMap::new();
     let mut new_inits = Vec::new();
     for p in patches {
@@ -180,7 +200,9 @@ fn apply_patches(g: &mut GraphMut, patches: Vec<Patch>) {
         let before = nodes.len();
         nodes.retain(|n| {
             let dead = is_constant_op(n)
-                && n.output.iter().all(|o| read_by_removed.contains(o) && !used.contains(o));
+                && n.output
+                    .iter()
+                    .all(|o| read_by_removed.contains(o) && !used.contains(o));
             if dead {
                 read_by_removed.extend(n.input.iter().cloned());
                 dropped_outputs.extend(n.output.iter().cloned());
@@ -193,10 +215,14 @@ fn apply_patches(g: &mut GraphMut, patches: Vec<Patch>) {
     }
     let used = g.referenced_names();
     if let Some(inits) = g.initializers() {
-        inits.retain(|t| !(read_by_removed.contains(t.name()) && !used.contains(t.name())));
+        inits.retain(|t| !read_by_removed.contains(t.name()) || used.contains(t.name()));
         inits.extend(new_inits);
     }
-    let produced: HashSet<String> = g.nodes().iter().flat_map(|n| n.output.iter().cloned()).collect();
+    let produced: HashSet<String> = g
+        .nodes()
+        .iter()
+        .flat_map(|n| n.output.iter().cloned())
+        .collect();
     g.value_info()
         .retain(|v| !dropped_outputs.contains(v.name()) || produced.contains(v.name()));
 }
@@ -206,7 +232,14 @@ fn is_constant_op(n: &NodeProto) -> bool {
     matches!(n.domain(), "" | "ai.onnx")
         && matches!(
             n.op_type(),
-            "Constant" | "Identity" | "Cast" | "CastLike" | "Reshape" | "Unsqueeze" | "Squeeze" | "Flatten"
+            "Constant"
+                | "Identity"
+                | "Cast"
+                | "CastLike"
+                | "Reshape"
+                | "Unsqueeze"
+                | "Squeeze"
+                | "Flatten"
         )
 }
 

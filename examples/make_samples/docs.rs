@@ -41,15 +41,15 @@ pub fn manifest(samples: &[Sample], sizes: &[usize]) -> Value {
         .zip(sizes)
         .map(|(s, &bytes)| {
             json!({
-                "file": s.file,
-                "scenario": s.scenario,
-                "description": s.description,
-                "opset": s.opset,
+                "file": s.about.file,
+                "scenario": s.about.scenario,
+                "description": s.about.description,
+                "opset": s.about.opset,
                 "ir_version": s.proto.ir_version,
                 "file_bytes": bytes,
-                "seeds": {"weights": s.seed, "calibration_input": s.seed + 1000},
-                "inputs": [io_json(&s.input)],
-                "outputs": [io_json(&s.output)],
+                "seeds": {"weights": s.about.seed, "calibration_input": s.about.seed + 1000},
+                "inputs": [io_json(&s.about.input)],
+                "outputs": [io_json(&s.about.output)],
                 "sites": s.record.sites.iter().enumerate().map(|(i, site)| site_json(i, site)).collect::<Vec<_>>(),
                 "near_misses": s.record.near_misses.iter().map(near_miss_json).collect::<Vec<_>>(),
             })
@@ -230,12 +230,12 @@ pub fn readme(samples: &[Sample], sizes: &[usize]) -> String {
         let _ = writeln!(
             out,
             "| `{}` | {} | {} ({}) | {} -> {} | {:.1} KB | {}: {} |",
-            s.file,
-            s.scenario,
-            s.opset,
+            s.about.file,
+            s.about.scenario,
+            s.about.opset,
             s.proto.ir_version(),
-            shape_text(&s.input),
-            shape_text(&s.output),
+            shape_text(&s.about.input),
+            shape_text(&s.about.output),
             *bytes as f64 / 1000.0,
             sites.len(),
             sites.join(", "),
@@ -245,9 +245,9 @@ pub fn readme(samples: &[Sample], sizes: &[usize]) -> String {
         let _ = write!(
             out,
             "\n## `{}`\n\n{}. Opset {}, IR version {}.\n\n",
-            s.file,
-            s.description,
-            s.opset,
+            s.about.file,
+            s.about.description,
+            s.about.opset,
             s.proto.ir_version()
         );
         out.push_str("| id | kind | form | params | ops | input -> output |\n");
@@ -276,7 +276,7 @@ pub fn readme(samples: &[Sample], sizes: &[usize]) -> String {
                 );
             }
         }
-        if let Some(note) = notes(s.file) {
+        if let Some(note) = notes(s.about.file) {
             let _ = writeln!(out, "\n{note}");
         }
     }

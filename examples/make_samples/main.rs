@@ -30,16 +30,16 @@ fn main() -> Result<()> {
         calibrate::calibrate(
             &mut s.proto,
             &s.record.calibrations,
-            &s.input.1,
-            s.seed + 1000,
+            &s.about.input.1,
+            s.about.seed + 1000,
         )
-        .with_context(|| format!("calibrating {}", s.file))?;
-        let path = dir.join(s.file);
+        .with_context(|| format!("calibrating {}", s.about.file))?;
+        let path = dir.join(s.about.file);
         Model::from_proto(s.proto.clone(), dir.clone()).save(&path, &SaveOptions::default())?;
         let bytes = s.proto.encoded_len();
         println!(
             "{:<28} {:>7} bytes  {:>2} sites",
-            s.file,
+            s.about.file,
             bytes,
             s.record.sites.len()
         );

@@ -5,8 +5,8 @@ use actswap::onnx::proto::{ModelProto, ValueInfoProto, tensor_proto::DataType};
 
 use crate::net::{Net, Param, Record};
 
-/// A finished sample model and what it holds.
-pub struct Sample {
+/// What a sample is, apart from its graph.
+pub struct About {
     pub file: &'static str,
     pub scenario: &'static str,
     pub description: &'static str,
@@ -16,6 +16,11 @@ pub struct Sample {
     /// Input and output names with shapes; dimension 0 is the symbolic `batch`.
     pub input: (&'static str, Vec<i64>),
     pub output: (&'static str, Vec<i64>),
+}
+
+/// A finished sample model and what it holds.
+pub struct Sample {
+    pub about: About,
     pub proto: ModelProto,
     pub record: Record,
 }
@@ -52,45 +57,22 @@ fn batched(name: &str, dims: &[i64]) -> ValueInfoProto {
     value(name, DataType::Float, &d)
 }
 
-/// What a sample is, apart from its graph.
-struct Header {
-    file: &'static str,
-    scenario: &'static str,
-    description: &'static str,
-    opset: i64,
-    seed: u64,
-    input: (&'static str, Vec<i64>),
-    output: (&'static str, Vec<i64>),
-}
-
-fn finish(net: Net, h: Header) -> Sample {
-    let Header {
-        file,
-        scenario,
-        description,
-        opset: opset_version,
-        seed,
-        input,
-        output,
-    } = h;
-    let graph_name = file.trim_end_matches(".onnx").replace('-', "_");
-    let doc = format!("{description}. Random weights, for demonstration only.");
+fn finish(net: Net, about: About) -> Sample {
+    let graph_name = about.file.trim_end_matches(".onnx").replace('-', "_");
+    let doc = format!(
+        "{}. Random weights, for demonstration only.",
+        about.description
+    );
     let (graph, record) = net.into_graph(
         &graph_name,
         &doc,
-        vec![batched(input.0, &input.1)],
-        vec![batched(output.0, &output.1)],
+        vec![batched(about.input.0, &about.input.1)],
+        vec![batched(about.output.0, &about.output.1)],
     );
-    let mut proto = model(graph, vec![opset("", opset_version)], "actswap-samples");
-    proto.ir_version = Some(ir_version(opset_version));
+    let mut proto = model(graph, vec![opset("", about.opset)], "actswap-samples");
+    proto.ir_version = Some(ir_version(about.opset));
     Sample {
-        file,
-        scenario,
-        description,
-        opset: opset_version,
-        seed,
-        input,
-        output,
+        about,
         proto,
         record,
     }
@@ -129,7 +111,7 @@ fn orchard_grader() -> Sample {
     n.calibrate(&y);
     finish(
         n,
-        Header {
+        About {
             file: "orchard-grader.onnx",
             scenario: "fruit grading on a packing line",
             description: "Fruit-grading convnet: 32x32 RGB crop to 5 grade scores",
@@ -164,7 +146,7 @@ fn pump_vibration() -> Sample {
     n.calibrate(&y);
     finish(
         n,
-        Header {
+        About {
             file: "pump-vibration.onnx",
             scenario: "pump vibration monitoring",
             description: "Vibration-anomaly MLP: 64-bin spectrum to one anomaly score",
@@ -228,7 +210,7 @@ fn door_chime_keywords() -> Sample {
     n.calibrate(&y);
     finish(
         n,
-        Header {
+        About {
             file: "door-chime-keywords.onnx",
             scenario: "keyword spotting for a door chime",
             description: "Keyword-spotting block: 20 MFCCs x 49 frames to 4 keyword scores",
@@ -324,7 +306,7 @@ fn greenhouse_climate() -> Sample {
     n.calibrate(&y);
     finish(
         n,
-        Header {
+        About {
             file: "greenhouse-climate.onnx",
             scenario: "greenhouse climate control",
             description: "Climate regressor MLP: 16 sensor readings to 3 setpoints",
@@ -364,7 +346,7 @@ fn beehive_acoustics() -> Sample {
     n.calibrate(&y);
     finish(
         n,
-        Header {
+        About {
             file: "beehive-acoustics.onnx",
             scenario: "beehive health from hive audio",
             description: "Hive-sound classifier: 256 audio samples to 3 colony states",

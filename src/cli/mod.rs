@@ -4,7 +4,9 @@
 //! (bad input, unreadable model, invalid options).
 
 mod catalog;
+mod drift;
 mod info;
+mod inputs;
 mod output;
 mod scan;
 
@@ -40,6 +42,7 @@ enum Command {
     Info(info::Args),
     Scan(scan::Args),
     Catalog(catalog::Args),
+    Drift(Box<drift::Args>),
 }
 
 /// Runs the command line and maps the outcome to an exit code; errors print as one line.
@@ -81,6 +84,7 @@ fn run(cli: Cli) -> Result<ExitCode> {
         Command::Info(args) => info::run(args),
         Command::Scan(args) => scan::run(args),
         Command::Catalog(args) => catalog::run(args),
+        Command::Drift(args) => drift::run(*args),
     }
 }
 

@@ -3,6 +3,7 @@
 
 pub mod catalog;
 pub mod cli;
+pub mod measure;
 pub mod onnx;
 pub mod plan;
 pub mod report;

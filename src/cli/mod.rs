@@ -4,7 +4,9 @@
 //! (bad input, unreadable model, invalid options).
 
 mod catalog;
+mod drift;
 mod info;
+mod inputs;
 mod output;
 mod scan;
 mod swap;
@@ -44,6 +46,7 @@ enum Command {
     Swap(swap::Args),
     Targets(targets::Args),
     Catalog(catalog::Args),
+    Drift(Box<drift::Args>),
 }
 
 /// Runs the command line and maps the outcome to an exit code; errors print as one line.
@@ -87,6 +90,7 @@ fn run(cli: Cli) -> Result<ExitCode> {
         Command::Swap(args) => swap::run(args),
         Command::Targets(args) => targets::run(args),
         Command::Catalog(args) => catalog::run(args),
+        Command::Drift(args) => drift::run(*args),
     }
 }
 

@@ -1,0 +1,159 @@
+//! `actswap drift`: the numeric drift and latency of a rewrite, per site and at every output,
+//! with both models run by tract on the same samples.
+//!
+//! Exit codes: 0 within budget, 1 over budget, 2 error. The JSON schema (`--json`) is documented
+//! in [`crate::measure::report`].
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use anyhow::{Context, Result, bail};
+
+use crate::measure::{self, Budgets, CompareOptions, LatencyOptions, Tolerance};
+use crate::onnx::Model;
+use crate::report::drift_table;
+use crate::run;
+
+use super::inputs::InputArgs;
+use super::{EXIT_OVER_BUDGET, output};
+
+#[derive(Debug, clap::Args)]
+#[command(
+    about = "Measure the drift and latency of a rewritten model against its original",
+    long_about = "Run both models on the same samples and report, per activation site, the \
+local drift (the new form isolated, fed the tensor the original site received) and the \
+propagated drift (the site's tensor in the rewritten model), the observed input range and the \
+catalogue's worst-case error over it, and per graph output max abs, mean abs, RMS, max rel, \
+cosine, the share beyond tolerance and top-1 agreement; then end-to-end and per-site latency. \
+Drift on sample inputs certifies nothing for safety-relevant uses: validate as your domain \
+requires.",
+    after_help = "Examples:\n  actswap drift model.onnx model.fast.onnx\n  actswap drift model.onnx model.fast.onnx --input image=batch.npy --max-abs 1e-3 --min-cosine 0.9999\n  actswap drift model.onnx model.fast.onnx --samples 8 --dist uniform --range=-4,4 --json\n\nExit codes: 0 within budget, 1 over budget, 2 error."
+)]
+pub struct Args {
+    /// The original ONNX model.
+    original: PathBuf,
+    /// The rewritten ONNX model.
+    rewritten: PathBuf,
+    #[command(flatten)]
+    inputs: InputArgs,
+    /// Budget: largest max abs allowed at any output.
+    #[arg(long, value_name = "X", help_heading = "Budgets")]
+    max_abs: Option<f64>,
+    /// Budget: largest max rel allowed at any output.
+    #[arg(long, value_name = "X", help_heading = "Budgets")]
+    max_rel: Option<f64>,
+    /// Budget: smallest cosine similarity allowed at any output.
+    #[arg(long, value_name = "X", help_heading = "Budgets")]
+    min_cosine: Option<f64>,
+    /// Budget: largest local max abs allowed at any site.
+    #[arg(long, value_name = "X", help_heading = "Budgets")]
+    site_max_abs: Option<f64>,
+    /// Absolute tolerance of the beyond-tolerance share.
+    #[arg(
+        long,
+        value_name = "X",
+        default_value_t = 1e-5,
+        help_heading = "Tolerance"
+    )]
+    atol: f64,
+    /// Relative tolerance of the beyond-tolerance share.
+    #[arg(
+        long,
+        value_name = "X",
+        default_value_t = 1e-4,
+        help_heading = "Tolerance"
+    )]
+    rtol: f64,
+    /// Floor of the max rel denominator: |b - a| / max(|a|, floor).
+    #[arg(
+        long,
+        value_name = "X",
+        default_value_t = 1e-6,
+        help_heading = "Tolerance"
+    )]
+    rel_floor: f64,
+    /// Timed runs of each model (interleaved).
+    #[arg(long, value_name = "N", default_value_t = 20, help_heading = "Latency")]
+    runs: usize,
+    /// Untimed runs of each model first.
+    #[arg(long, value_name = "N", default_value_t = 3, help_heading = "Latency")]
+    warmup: usize,
+    /// Skip latency measurement.
+    #[arg(long, help_heading = "Latency", conflicts_with_all = ["runs", "warmup"])]
+    no_latency: bool,
+    /// Print JSON instead of text (schema: see the documentation of actswap::measure::report).
+    #[arg(long, help_heading = "Output")]
+    json: bool,
+}
+
+pub fn run(args: Args) -> Result<ExitCode> {
+    let opts = options(&args)?;
+    let original = Model::load(&args.original)?;
+    let rewritten = Model::load(&args.rewritten)?;
+    let tract = run::prepare(&original.encode(), Some(original.dir()))
+        .with_context(|| format!("'{}'", args.original.display()))?;
+    let loaded = args.inputs.load(tract.inputs())?;
+    drop(tract);
+    let opts = CompareOptions {
+        input_source: loaded.source,
+        ..opts
+    };
+    let report = measure::compare(&original, &rewritten, &loaded.samples, &opts)?;
+    if args.json {
+        output::print_json(&report.to_json())?;
+    } else {
+        output::print(&drift_table::render(&report))?;
+    }
+    Ok(if report.within_budget {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(EXIT_OVER_BUDGET)
+    })
+}
+
+/// Validates the flags into comparison options.
+fn options(args: &Args) -> Result<CompareOptions> {
+    for (flag, value) in [
+        ("--max-abs", args.max_abs),
+        ("--max-rel", args.max_rel),
+        ("--site-max-abs", args.site_max_abs),
+        ("--atol", Some(args.atol)),
+        ("--rtol", Some(args.rtol)),
+        ("--rel-floor", Some(args.rel_floor)),
+    ] {
+        if let Some(v) = value
+            && !(v.is_finite() && v >= 0.0)
+        {
+            bail!("{flag} must be a finite number >= 0 (got {v})");
+        }
+    }
+    if args.rel_floor == 0.0 {
+        bail!("--rel-floor must be > 0");
+    }
+    if let Some(c) = args.min_cosine
+        && !(-1.0..=1.0).contains(&c)
+    {
+        bail!("--min-cosine must lie in [-1, 1] (got {c})");
+    }
+    if args.runs == 0 {
+        bail!("--runs must be at least 1");
+    }
+    Ok(CompareOptions {
+        tolerance: Tolerance {
+            atol: args.atol,
+            rtol: args.rtol,
+            rel_floor: args.rel_floor,
+        },
+        budgets: Budgets {
+            max_abs: args.max_abs,
+            max_rel: args.max_rel,
+            min_cosine: args.min_cosine,
+            site_max_abs: args.site_max_abs,
+        },
+        latency: (!args.no_latency).then_some(LatencyOptions {
+            runs: args.runs,
+            warmup: args.warmup,
+        }),
+        input_source: String::new(),
+    })
+}

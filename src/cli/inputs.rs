@@ -1,0 +1,176 @@
+//! Input options shared by the commands that run models (`drift`, `audit`, `batch`): samples from
+//! files, a folder, or seeded random data.
+//!
+//! Files (`--input`) and folders (`--inputs-dir`) follow the layouts of
+//! [`crate::run::inputs`]. Without either, samples are random: `--samples` samples from one
+//! generator seeded with `--seed`, every element drawn from `--dist`:
+//! - `uniform`: uniform on `[LO, HI)` from `--range LO,HI` (default `-1,1`);
+//! - `normal`: normal with mean `(LO + HI) / 2` and standard deviation `(HI - LO) / 4`, so
+//!   `--range` spans mean +- 2 standard deviations, about 95% of the draws (default: mean 0,
+//!   standard deviation 1, i.e. `-2,2`).
+//!
+//! Symbolic input dims take sizes from `--dim NAME=SIZE`; an unset one is an error naming it.
+
+use std::collections::BTreeMap;
+use std::path::PathBuf;
+
+use anyhow::{Context, Result, bail};
+
+use crate::run::inputs::{
+    Binding, DEFAULT_MAX_ELEMENTS, Distribution, InputLoader, RandomInputs, parse_dim_size,
+};
+use crate::run::{InputSpec, Sample};
+
+/// Random input distributions.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum Dist {
+    Normal,
+    Uniform,
+}
+
+/// Where input samples come from.
+#[derive(Debug, Clone, clap::Args)]
+#[command(next_help_heading = "Inputs (random unless --input or --inputs-dir is given)")]
+pub struct InputArgs {
+    /// Feed input NAME from FILE (.npy, .npz or .pb); a bare .npz feeds every input it names.
+    /// Repeat an input to give several samples.
+    #[arg(long = "input", value_name = "NAME=FILE")]
+    pub input: Vec<String>,
+    /// Read samples from a folder: test_data_set_N/ subfolders, input_K.pb|.npy files, or
+    /// numbered .npz archives.
+    #[arg(long, value_name = "DIR", conflicts_with = "input")]
+    pub inputs_dir: Option<PathBuf>,
+    /// Seed of the random inputs [default: 0].
+    #[arg(long, value_name = "N", conflicts_with_all = ["input", "inputs_dir"])]
+    pub seed: Option<u64>,
+    /// Distribution of the random inputs [default: normal].
+    #[arg(long, value_enum, conflicts_with_all = ["input", "inputs_dir"])]
+    pub dist: Option<Dist>,
+    /// Uniform: the bounds [LO, HI). Normal: mean (LO+HI)/2, standard deviation (HI-LO)/4
+    /// [default: -1,1 uniform; -2,2 normal].
+    #[arg(long, value_name = "LO,HI", allow_hyphen_values = true,
+          conflicts_with_all = ["input", "inputs_dir"])]
+    pub range: Option<String>,
+    /// Number of random samples [default: 1].
+    #[arg(long, value_name = "N", conflicts_with_all = ["input", "inputs_dir"])]
+    pub samples: Option<usize>,
+    /// Size of a symbolic input dim for random inputs (repeatable).
+    #[arg(long = "dim", value_name = "NAME=SIZE", conflicts_with_all = ["input", "inputs_dir"])]
+    pub dim: Vec<String>,
+    /// Refuse any input tensor with more elements than this.
+    #[arg(long, value_name = "N", default_value_t = DEFAULT_MAX_ELEMENTS)]
+    pub max_elements: usize,
+}
+
+/// Samples and a description of where they came from.
+#[derive(Debug, Clone)]
+pub struct LoadedSamples {
+    pub samples: Vec<Sample>,
+    pub source: String,
+}
+
+impl InputArgs {
+    /// Builds the samples for a model with these inputs.
+    pub fn load(&self, inputs: &[InputSpec]) -> Result<LoadedSamples> {
+        let loader = InputLoader::new(inputs).with_max_elements(self.max_elements);
+        if let Some(dir) = &self.inputs_dir {
+            let samples = loader.from_folder(dir)?;
+            return Ok(LoadedSamples {
+                samples,
+                source: format!("folder {}", dir.display()),
+            });
+        }
+        if !self.input.is_empty() {
+            let bindings = self
+                .input
+                .iter()
+                .map(|b| Binding::parse(b))
+                .collect::<Result<Vec<_>, _>>()?;
+            let samples = loader.from_bindings(&bindings)?;
+            return Ok(LoadedSamples {
+                samples,
+                source: format!("files {}", self.input.join(", ")),
+            });
+        }
+        let spec = self.random()?;
+        let samples = loader.random(&spec)?;
+        Ok(LoadedSamples {
+            samples,
+            source: describe_random(&spec),
+        })
+    }
+
+    /// The random-input settings, validated.
+    fn random(&self) -> Result<RandomInputs> {
+        let dist = self.dist.unwrap_or(Dist::Normal);
+        let (lo, hi) = match &self.range {
+            Some(text) => parse_range(text)?,
+            None if dist == Dist::Uniform => (-1.0, 1.0),
+            None => (-2.0, 2.0),
+        };
+        let distribution = match dist {
+            Dist::Uniform => Distribution::Uniform { low: lo, high: hi },
+            Dist::Normal => Distribution::Normal {
+                mean: (lo + hi) / 2.0,
+                std_dev: (hi - lo) / 4.0,
+            },
+        };
+        let samples = self.samples.unwrap_or(1);
+        if samples == 0 {
+            bail!("--samples must be at least 1");
+        }
+        let dims: BTreeMap<String, usize> = self
+            .dim
+            .iter()
+            .map(|d| parse_dim_size(d))
+            .collect::<Result<_, _>>()?;
+        Ok(RandomInputs {
+            seed: self.seed.unwrap_or(0),
+            distribution,
+            samples,
+            dims,
+        })
+    }
+}
+
+/// Parses `LO,HI` with finite LO < HI.
+fn parse_range(text: &str) -> Result<(f64, f64)> {
+    let bad = || format!("bad --range '{text}': expected LO,HI with LO < HI");
+    let (lo, hi) = text.split_once(',').with_context(bad)?;
+    let lo: f64 = lo.trim().parse().ok().with_context(bad)?;
+    let hi: f64 = hi.trim().parse().ok().with_context(bad)?;
+    if !(lo.is_finite() && hi.is_finite() && lo < hi) {
+        bail!(bad());
+    }
+    Ok((lo, hi))
+}
+
+fn describe_random(spec: &RandomInputs) -> String {
+    let dist = match spec.distribution {
+        Distribution::Normal { mean, std_dev } => {
+            format!("normal (mean {mean}, standard deviation {std_dev})")
+        }
+        Distribution::Uniform { low, high } => format!("uniform on [{low}, {high})"),
+    };
+    let dims: Vec<String> = spec.dims.iter().map(|(k, v)| format!("{k}={v}")).collect();
+    let dims = if dims.is_empty() {
+        String::new()
+    } else {
+        format!(", dims {}", dims.join(" "))
+    };
+    format!("random {dist}, seed {}{dims}", spec.seed)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::parse_range;
+
+    #[test]
+    fn ranges_need_two_ordered_finite_bounds() {
+        assert_eq!(parse_range("-3,3").unwrap(), (-3.0, 3.0));
+        assert_eq!(parse_range(" 0.5 , 2 ").unwrap(), (0.5, 2.0));
+        for bad in ["3", "3,-3", "1,1", "a,b", "0,inf", ","] {
+            assert!(parse_range(bad).is_err(), "{bad}");
+        }
+    }
+}

@@ -1,0 +1,645 @@
+//! Comparing an original model with its rewrite on the same samples: drift per site and at every
+//! graph output, budgets, and latency. The library entry of the `drift` and `audit` commands.
+//!
+//! Both models are scanned; sites are matched by graph and output tensor name (a rewrite keeps a
+//! site's output name). Each model runs once per sample with every matched site's input and
+//! output requested as extra outputs (top-level graph only). Per matched site:
+//! - **local drift**: the rewritten model's site, isolated ([`super::isolate`]), against the
+//!   original site, isolated, both fed the very tensor the original site received. Both sides go
+//!   through the same isolation and the same tract optimizer, so the difference is the swap's
+//!   own error; `isolation_max_abs` checks the isolated original against its value in the full
+//!   model. A site inside a subgraph is measured when its input is a top-level tensor; inside a
+//!   function, or with an input computed in a subgraph, it is reported as not measured, with
+//!   the reason.
+//! - **propagated drift**: the site's output tensor in the rewritten model against the original
+//!   model (upstream changes included); top-level sites only.
+//! - the observed input range and the catalogue's worst-case error of (kind_a, params_a) vs
+//!   (kind_b, params_b) over [min, max] (per-channel parameters: the worst channel).
+
+use std::collections::{HashMap, HashSet};
+
+use anyhow::{Context, Result, ensure};
+
+use super::budget::{self, Budgets, Offender, Scope};
+use super::capture::{self, Values, widen};
+use super::isolate::{self, Extract, InputDecl, Part};
+use super::latency::{self, LatencyOptions};
+use super::metrics::{DriftAccumulator, Tolerance, Top1Accumulator, top1_applies};
+use super::range::RangeCollector;
+use super::report::{CAUTION, DriftReport, LocalBasis, OutputDrift, SiteDrift, UnmatchedSite};
+use crate::catalog::{self, substitute};
+use crate::onnx::{GraphKind, Model, ModelIndex};
+use crate::run::{self, NamedTensor, Sample, TractModel};
+use crate::scan::{self, ParamValue, Site};
+
+/// How to compare.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CompareOptions {
+    pub tolerance: Tolerance,
+    pub budgets: Budgets,
+    /// `None`: no latency measured.
+    pub latency: Option<LatencyOptions>,
+    /// Where the samples came from, as the report states it.
+    pub input_source: String,
+}
+
+impl Default for CompareOptions {
+    /// Default tolerance, no budgets, default latency runs.
+    fn default() -> Self {
+        CompareOptions {
+            tolerance: Tolerance::default(),
+            budgets: Budgets::default(),
+            latency: Some(LatencyOptions::default()),
+            input_source: "given by the caller".into(),
+        }
+    }
+}
+
+/// Compares `rewritten` with `original` on `samples`; see the module doc.
+pub fn compare(
+    original: &Model,
+    rewritten: &Model,
+    samples: &[Sample],
+    opts: &CompareOptions,
+) -> Result<DriftReport> {
+    ensure!(!samples.is_empty(), "no input samples to compare on");
+    let a = Side::load(original, "original model")?;
+    let b = Side::load(rewritten, "rewritten model")?;
+    let (pairs, unmatched) = match_sites(&a, &b);
+
+    let mut extra_a = Vec::new();
+    let mut extra_b = Vec::new();
+    for p in &pairs {
+        if p.input.is_ok() && !a.is_input(&p.a.input) {
+            extra_a.push(p.a.input.clone());
+        }
+        if p.top {
+            extra_a.push(p.a.output.clone());
+            extra_b.push(p.b.output.clone());
+        }
+    }
+    let values_a = capture::run_samples(&a.tract, samples, &extra_a, "original model")?;
+    let values_b = capture::run_samples(&b.tract, samples, &extra_b, "rewritten model")?;
+
+    let mut sites: Vec<SiteDrift> = pairs.iter().map(Pair::record).collect();
+    for (p, rec) in pairs.iter().zip(sites.iter_mut()) {
+        measure_propagated(p, rec, &values_a, &values_b, opts.tolerance);
+        measure_range(p, rec, &values_a);
+    }
+    let isolated = measure_local(&a, &b, &pairs, &mut sites, &values_a, opts.tolerance);
+    let outputs = measure_outputs(&a, &b, &values_a, &values_b, opts.tolerance);
+    let latency = match opts.latency {
+        Some(lat) => {
+            for ((p, iso), rec) in pairs.iter().zip(&isolated).zip(sites.iter_mut()) {
+                if let Some(iso) = iso.as_ref().filter(|i| !i.identical) {
+                    match site_latency(&a, &b, p, iso, &values_a[0], lat) {
+                        Ok(l) => rec.latency = Some(l),
+                        Err(e) => rec
+                            .notes
+                            .push(format!("latency not measured: {}", flat(&e))),
+                    }
+                }
+            }
+            Some(latency::end_to_end(&a.tract, &b.tract, &samples[0], lat)?)
+        }
+        None => None,
+    };
+
+    let mut offenders: Vec<Offender> = Vec::new();
+    for (out, drift) in &outputs {
+        match drift {
+            Ok(_) => {
+                let m = out.metrics.as_ref().expect("measured output");
+                offenders.extend(opts.budgets.check_output(&out.name, m));
+            }
+            Err(reason) => offenders.push(budget::incomparable(&out.name, reason.clone())),
+        }
+    }
+    for rec in &sites {
+        if let Some(local) = &rec.local {
+            offenders.extend(opts.budgets.check_site(&rec.id_a, &rec.output, local));
+        }
+    }
+    let offending =
+        |scope: Scope, name: &str| offenders.iter().any(|o| o.scope == scope && o.name == name);
+    let mut outputs: Vec<OutputDrift> = outputs.into_iter().map(|(o, _)| o).collect();
+    outputs.sort_by_key(|o| !offending(Scope::Output, &o.name));
+    sites.sort_by_key(|s| !offending(Scope::Site, &s.output));
+
+    Ok(DriftReport {
+        model_a: file_label(original),
+        model_b: file_label(rewritten),
+        samples: samples.len(),
+        input_source: opts.input_source.clone(),
+        tolerance: opts.tolerance,
+        within_budget: offenders.is_empty(),
+        sites,
+        outputs,
+        unmatched,
+        latency,
+        budgets: opts.budgets,
+        offenders,
+        caution: CAUTION,
+    })
+}
+
+/// One model with its index, sites and tract model.
+struct Side<'m> {
+    model: &'m Model,
+    index: ModelIndex<'m>,
+    sites: Vec<Site>,
+    tract: TractModel,
+}
+
+impl<'m> Side<'m> {
+    fn load(model: &'m Model, what: &str) -> Result<Side<'m>> {
+        let index = ModelIndex::build(model).with_context(|| what.to_string())?;
+        let sites = scan::scan(&index).sites;
+        let tract =
+            run::prepare(&model.encode(), Some(model.dir())).with_context(|| what.to_string())?;
+        Ok(Side {
+            model,
+            index,
+            sites,
+            tract,
+        })
+    }
+
+    fn is_input(&self, name: &str) -> bool {
+        self.tract.inputs().iter().any(|i| i.name == name)
+    }
+
+    /// Whether `site`'s input can be captured from a top-level run; the reason when not.
+    fn input_capture(&self, site: &Site) -> Result<(), String> {
+        let mut g = site.graph_index;
+        loop {
+            let graph = &self.index.graphs[g];
+            if let GraphKind::Function { .. } = graph.kind {
+                return Err(format!(
+                    "the site is inside {}, whose values are not captured",
+                    graph.path
+                ));
+            }
+            let defined = graph.producer(&site.input).is_some()
+                || graph.is_input(&site.input)
+                || graph.initializer(&site.input).is_some();
+            match graph.parent {
+                None if defined => return Ok(()),
+                None => {
+                    return Err(format!(
+                        "its input '{}' is not a top-level tensor",
+                        site.input
+                    ));
+                }
+                Some(_) if defined => {
+                    return Err(format!(
+                        "its input is computed inside {}; only top-level values are captured",
+                        graph.path
+                    ));
+                }
+                Some(p) => g = p,
+            }
+        }
+    }
+}
+
+/// A site of the original model and its counterpart in the rewritten one.
+struct Pair<'s> {
+    a: &'s Site,
+    b: &'s Site,
+    /// Whether the original site's input can be captured (the reason when not).
+    input: Result<(), String>,
+    /// Whether the site lives in the top-level graph (its output can be captured).
+    top: bool,
+}
+
+impl Pair<'_> {
+    fn record(&self) -> SiteDrift {
+        let mut notes = Vec::new();
+        if let Err(why) = &self.input {
+            notes.push(format!("local drift not measured: {why}"));
+        }
+        if !self.top {
+            notes.push(format!(
+                "propagated drift not measured: the site lives in {}",
+                self.a.graph
+            ));
+        }
+        SiteDrift {
+            id_a: self.a.id.clone(),
+            id_b: self.b.id.clone(),
+            output: self.a.output.clone(),
+            graph: self.a.graph.clone(),
+            kind_a: self.a.kind.clone(),
+            params_a: self.a.params.clone(),
+            ops_a: self.a.ops.clone(),
+            kind_b: self.b.kind.clone(),
+            params_b: self.b.params.clone(),
+            ops_b: self.b.ops.clone(),
+            local: None,
+            local_basis: None,
+            propagated: None,
+            isolation_max_abs: None,
+            input_range: None,
+            bound_over_range: None,
+            bound_at: None,
+            latency: None,
+            notes,
+        }
+    }
+}
+
+/// Sites matched by (graph, output), in the original's order, and the sites left unmatched.
+fn match_sites<'s>(a: &'s Side, b: &'s Side) -> (Vec<Pair<'s>>, Vec<UnmatchedSite>) {
+    let by_output: HashMap<(&str, &str), &Site> = b
+        .sites
+        .iter()
+        .map(|s| ((s.graph.as_str(), s.output.as_str()), s))
+        .collect();
+    let mut matched: HashSet<&str> = HashSet::new();
+    let mut pairs = Vec::new();
+    let mut unmatched = Vec::new();
+    let unmatched_site = |model, s: &Site| UnmatchedSite {
+        model,
+        id: s.id.clone(),
+        kind: s.kind.clone(),
+        output: s.output.clone(),
+        graph: s.graph.clone(),
+    };
+    for sa in &a.sites {
+        match by_output.get(&(sa.graph.as_str(), sa.output.as_str())) {
+            Some(sb) => {
+                matched.insert(sb.id.as_str());
+                pairs.push(Pair {
+                    a: sa,
+                    b: sb,
+                    input: a.input_capture(sa),
+                    top: sa.graph_index == 0,
+                });
+            }
+            None => unmatched.push(unmatched_site("a", sa)),
+        }
+    }
+    for sb in b.sites.iter().filter(|s| !matched.contains(s.id.as_str())) {
+        unmatched.push(unmatched_site("b", sb));
+    }
+    (pairs, unmatched)
+}
+
+fn measure_propagated(
+    p: &Pair,
+    rec: &mut SiteDrift,
+    values_a: &[Values],
+    values_b: &[Values],
+    tol: Tolerance,
+) {
+    if !p.top {
+        return;
+    }
+    let mut acc = DriftAccumulator::new(tol);
+    let measured: Result<()> = values_a
+        .iter()
+        .zip(values_b)
+        .try_for_each(|(va, vb)| acc.add(&widen(&va[&p.a.output])?, &widen(&vb[&p.b.output])?));
+    match measured {
+        Ok(()) => rec.propagated = Some(acc.finish()),
+        Err(e) => rec
+            .notes
+            .push(format!("propagated drift not measured: {}", flat(&e))),
+    }
+}
+
+fn measure_range(p: &Pair, rec: &mut SiteDrift, values_a: &[Values]) {
+    if p.input.is_err() {
+        return;
+    }
+    let mut range = RangeCollector::default();
+    for v in values_a {
+        match widen(&v[&p.a.input]) {
+            Ok(x) => range.add(&x),
+            Err(e) => {
+                rec.notes
+                    .push(format!("input range not measured: {}", flat(&e)));
+                return;
+            }
+        }
+    }
+    rec.input_range = range.finish();
+    match rec.input_range {
+        None => rec
+            .notes
+            .push("input range: no finite input value was seen".into()),
+        Some(r) => match worst_case(p.a, p.b, r.min, r.max) {
+            Ok((value, at)) => {
+                rec.bound_over_range = Some(value);
+                rec.bound_at = Some(at);
+            }
+            Err(why) => rec.notes.push(format!("no worst-case bound: {why}")),
+        },
+    }
+}
+
+/// The catalogue's worst-case |a - b| over [lo, hi], worst channel first; and where.
+fn worst_case(a: &Site, b: &Site, lo: f64, hi: f64) -> Result<(f64, f64), String> {
+    let kind = |s: &Site| catalog::get(&s.kind).ok_or_else(|| format!("unknown kind {}", s.kind));
+    let (ka, kb) = (kind(a)?, kind(b)?);
+    let channels = |s: &Site| {
+        s.params
+            .values()
+            .filter_map(|v| match v {
+                ParamValue::PerChannel(c) => Some(c.len()),
+                ParamValue::Scalar(_) => None,
+            })
+            .max()
+    };
+    let n = match (channels(a), channels(b)) {
+        (Some(x), Some(y)) if x != y => {
+            return Err(format!("{x} channels in the original, {y} in the new site"));
+        }
+        (x, y) => x.or(y).unwrap_or(1),
+    };
+    let params = |k: &catalog::Kind, s: &Site, c: usize| -> Vec<f64> {
+        k.params
+            .iter()
+            .map(|p| match s.params.get(p.name) {
+                Some(ParamValue::Scalar(v)) => *v,
+                Some(ParamValue::PerChannel(vs)) => vs[c],
+                None => p.default,
+            })
+            .collect()
+    };
+    let mut seen: Vec<(Vec<f64>, Vec<f64>)> = Vec::new();
+    let mut worst: Option<(f64, f64)> = None;
+    for c in 0..n {
+        let (pa, pb) = (params(ka, a, c), params(kb, b, c));
+        if seen.iter().any(|(x, y)| *x == pa && *y == pb) {
+            continue;
+        }
+        let e = if ka.id == kb.id && pa == pb {
+            substitute::ErrorBound { value: 0.0, at: lo }
+        } else {
+            substitute::max_abs_error((ka, &pa), (kb, &pb), lo, hi)
+        };
+        seen.push((pa, pb));
+        if worst.is_none_or(|(v, _)| e.value > v || e.value.is_nan()) {
+            worst = Some((e.value, e.at));
+        }
+    }
+    worst.ok_or_else(|| "no channels".to_string())
+}
+
+/// An isolated site pair: both extracts and the declared input.
+struct Isolated {
+    ext_a: Extract,
+    ext_b: Extract,
+    decl: InputDecl,
+    prefix: String,
+    /// Same nodes, attributes and constants under the same opsets: the same computation.
+    identical: bool,
+}
+
+/// Local drift of every site whose input was captured, with all isolated sites of each model
+/// in one model (one compile and one run per model and sample). A site the rewrite left
+/// identical (same nodes, attributes and constants, same opsets) computes the original's values
+/// from the original's input, so it is not run: its local drift is the captured original output
+/// against itself, and its basis says so. Returns each pair's isolation.
+fn measure_local(
+    a: &Side,
+    b: &Side,
+    pairs: &[Pair],
+    sites: &mut [SiteDrift],
+    values_a: &[Values],
+    tol: Tolerance,
+) -> Vec<Option<Isolated>> {
+    let mut isolated: Vec<Option<Isolated>> = Vec::with_capacity(pairs.len());
+    for (p, rec) in pairs.iter().zip(sites.iter_mut()) {
+        let iso = if p.input.is_err() {
+            None
+        } else if p.a.input != p.b.input {
+            rec.notes.push(format!(
+                "local drift not measured: the sites read different tensors ('{}' in the original, '{}' in the rewritten model)",
+                p.a.input, p.b.input
+            ));
+            None
+        } else {
+            let built = (|| -> Result<Isolated> {
+                let decl = InputDecl::of(values_a.iter().map(|v| &v[&p.a.input].tensor))?;
+                let ext_a = isolate::extract(&a.index, p.a).context("original model")?;
+                let ext_b = isolate::extract(&b.index, p.b).context("rewritten model")?;
+                let identical = p.top
+                    && ext_a.nodes == ext_b.nodes
+                    && ext_a.initializers == ext_b.initializers
+                    && a.model.proto().opset_import == b.model.proto().opset_import;
+                Ok(Isolated {
+                    ext_a,
+                    ext_b,
+                    decl,
+                    prefix: format!("{}|", p.a.id),
+                    identical,
+                })
+            })();
+            built
+                .map_err(|e| {
+                    rec.notes
+                        .push(format!("local drift not measured: {}", flat(&e)))
+                })
+                .ok()
+        };
+        isolated.push(iso);
+    }
+    for ((p, iso), rec) in pairs.iter().zip(&isolated).zip(sites.iter_mut()) {
+        if iso.as_ref().is_some_and(|i| i.identical) {
+            let mut same = DriftAccumulator::new(tol);
+            let measured: Result<()> = values_a.iter().try_for_each(|v| {
+                let x = widen(&v[&p.a.output])?;
+                same.add(&x, &x)
+            });
+            match measured {
+                Ok(()) => {
+                    rec.local = Some(same.finish());
+                    rec.local_basis = Some(LocalBasis::Identical);
+                }
+                Err(e) => rec
+                    .notes
+                    .push(format!("local drift not measured: {}", flat(&e))),
+            }
+        }
+    }
+    let parts = |b_side: bool| -> Vec<Part> {
+        isolated
+            .iter()
+            .flatten()
+            .filter(|iso| !iso.identical)
+            .map(|iso| Part {
+                extract: if b_side { &iso.ext_b } else { &iso.ext_a },
+                decl: &iso.decl,
+                prefix: &iso.prefix,
+            })
+            .collect()
+    };
+    let (parts_a, parts_b) = (parts(false), parts(true));
+    if parts_a.is_empty() {
+        return isolated;
+    }
+    let samples: Vec<Sample> = values_a
+        .iter()
+        .map(|v| {
+            parts_a
+                .iter()
+                .map(|part| {
+                    NamedTensor::new(part.input_name(), v[&part.extract.input].tensor.clone())
+                })
+                .collect()
+        })
+        .collect();
+    let run_isolated = |side: &Side, parts: &[Part], what: &str| -> Result<Vec<Values>> {
+        let model = isolate::build(side.model, parts);
+        let tract = run::prepare(&model.encode(), Some(model.dir())).context(what.to_string())?;
+        capture::run_samples(&tract, &samples, &[], what)
+    };
+    let runs = run_isolated(a, &parts_a, "isolated original sites")
+        .and_then(|ra| Ok((ra, run_isolated(b, &parts_b, "isolated new sites")?)));
+    let (out_a, out_b) = match runs {
+        Ok(r) => r,
+        Err(e) => {
+            for (iso, rec) in isolated.iter().zip(sites.iter_mut()) {
+                if iso.as_ref().is_some_and(|i| !i.identical) {
+                    rec.notes
+                        .push(format!("local drift not measured: {}", flat(&e)));
+                }
+            }
+            return isolated;
+        }
+    };
+    let mut k = 0;
+    for ((p, iso), rec) in pairs.iter().zip(&isolated).zip(sites.iter_mut()) {
+        if iso.as_ref().is_none_or(|i| i.identical) {
+            continue;
+        }
+        let (pa, pb) = (&parts_a[k], &parts_b[k]);
+        k += 1;
+        let mut local = DriftAccumulator::new(tol);
+        let mut check = DriftAccumulator::new(tol);
+        let measured: Result<()> = (0..values_a.len()).try_for_each(|s| {
+            let ia = widen(&out_a[s][&pa.output_name()])?;
+            local.add(&ia, &widen(&out_b[s][&pb.output_name()])?)?;
+            if p.top {
+                check.add(&widen(&values_a[s][&p.a.output])?, &ia)?;
+            }
+            Ok(())
+        });
+        match measured {
+            Ok(()) => {
+                rec.local = Some(local.finish());
+                rec.local_basis = Some(LocalBasis::Isolated);
+                if p.top {
+                    let check = check.finish();
+                    if check.beyond_tol > 0 {
+                        rec.notes.push(format!(
+                            "the isolated original site differs from its value in the full model by up to {:.3e}: tract optimized the two differently",
+                            check.max_abs
+                        ));
+                    }
+                    rec.isolation_max_abs = Some(check.max_abs);
+                }
+            }
+            Err(e) => rec
+                .notes
+                .push(format!("local drift not measured: {}", flat(&e))),
+        }
+    }
+    isolated
+}
+
+/// Per-site latency: each form isolated on its own, fed the first sample's captured input.
+fn site_latency(
+    a: &Side,
+    b: &Side,
+    p: &Pair,
+    iso: &Isolated,
+    values: &Values,
+    opts: LatencyOptions,
+) -> Result<latency::SiteLatency> {
+    let input = &values[&p.a.input].tensor;
+    let decl = InputDecl::of([input])?;
+    let single = |side: &Side, extract: &Extract| {
+        isolate::build(
+            side.model,
+            &[Part {
+                extract,
+                decl: &decl,
+                prefix: "",
+            }],
+        )
+    };
+    let (ma, mb) = (single(a, &iso.ext_a), single(b, &iso.ext_b));
+    let sa: Sample = vec![NamedTensor::new(&iso.ext_a.input, input.clone())];
+    let sb: Sample = vec![NamedTensor::new(&iso.ext_b.input, input.clone())];
+    latency::site((&ma, &sa), (&mb, &sb), opts)
+}
+
+/// Drift and top-1 agreement at every graph output of the original model; the error says why
+/// an output could not be compared.
+fn measure_outputs(
+    a: &Side,
+    b: &Side,
+    values_a: &[Values],
+    values_b: &[Values],
+    tol: Tolerance,
+) -> Vec<(OutputDrift, Result<(), String>)> {
+    a.tract
+        .output_names()
+        .iter()
+        .map(|name| {
+            let mut out = OutputDrift {
+                name: name.clone(),
+                metrics: None,
+                top1_agreement: None,
+                notes: Vec::new(),
+            };
+            if !b.tract.output_names().contains(name) {
+                let why = "the rewritten model has no such output".to_string();
+                out.notes.push(why.clone());
+                return (out, Err(why));
+            }
+            let mut acc = DriftAccumulator::new(tol);
+            let mut top1 = Top1Accumulator::default();
+            let mut ranks = true;
+            let measured: Result<()> = values_a.iter().zip(values_b).try_for_each(|(va, vb)| {
+                let (x, y) = (widen(&va[name])?, widen(&vb[name])?);
+                acc.add(&x, &y)?;
+                ranks &= top1_applies(x.shape());
+                if ranks {
+                    top1.add(&x, &y)?;
+                }
+                Ok(())
+            });
+            match measured {
+                Ok(()) => {
+                    out.metrics = Some(acc.finish());
+                    out.top1_agreement = ranks.then(|| top1.finish());
+                    (out, Ok(()))
+                }
+                Err(e) => {
+                    let why = format!("not compared: {}", flat(&e));
+                    out.notes.push(why.clone());
+                    (out, Err(why))
+                }
+            }
+        })
+        .collect()
+}
+
+/// The model's file, or a placeholder for a model built in memory.
+fn file_label(model: &Model) -> String {
+    if model.path().as_os_str().is_empty() {
+        "(in memory)".into()
+    } else {
+        model.path().display().to_string()
+    }
+}
+
+/// An error and its causes on one line.
+fn flat(e: &anyhow::Error) -> String {
+    format!("{e:#}")
+}

@@ -1,0 +1,143 @@
+//! What a comparison reports, and its JSON form (`actswap drift --json`).
+//!
+//! # JSON schema
+//! Keys appear in this order; figures are numbers, and a number that is not finite (say a ratio
+//! over a zero time) is written as `null`.
+//!
+//! ```text
+//! {
+//!   "model_a": "original.onnx",           the original model's file ("(in memory)" if none)
+//!   "model_b": "rewritten.onnx",
+//!   "samples": 4,                          samples compared
+//!   "input_source": "...",                 where the samples came from
+//!   "tolerance": {"atol", "rtol", "rel_floor"},
+//!   "sites": [{                            matched sites, offenders first, then in site order
+//!     "id_a", "id_b",                      site ids in each model's scan
+//!     "output", "graph",                   the site's output tensor (same in both) and graph path
+//!     "kind_a", "params_a", "ops_a",       the original site: kind, parameters, op types
+//!     "kind_b", "params_b", "ops_b",       the new site
+//!     "local": METRICS | null,             new site isolated vs original site isolated, both
+//!                                          fed the tensor the original site received
+//!     "local_basis": "isolated" | "identical" | null,
+//!                                          how: both isolated sites were run, or the rewrite
+//!                                          left the site identical (same nodes, attributes,
+//!                                          constants and opsets), so the original's captured
+//!                                          output is compared with itself and nothing is run
+//!     "propagated": METRICS | null,        the output tensor in the rewritten vs original model
+//!     "isolation_max_abs": x | null,       isolated original site vs its value in the full model
+//!     "input_range": {"min", "max", "p01", "p99", "nonfinite"} | null,
+//!     "bound_over_range": x | null,        catalogue worst case |kind_a - kind_b| on [min, max]
+//!     "bound_at": x | null,                where it is reached
+//!     "latency": {"a_median_s", "b_median_s", "ratio"} | null,   identical sites: null
+//!     "notes": ["..."]                     why a figure is missing, and other remarks
+//!   }],
+//!   "outputs": [{"name", "metrics": METRICS | null,
+//!                "top1_agreement": {"rows", "agreeing", "share"} | null, "notes": [...]}],
+//!   "unmatched": [{"model": "a" | "b", "id", "kind", "output", "graph"}],
+//!   "latency": {"a": {"median_s", "p10_s", "p90_s"}, "b": {...}, "ratio", "runs", "warmup"}
+//!              | null,
+//!   "budgets": {"max_abs", "max_rel", "min_cosine", "site_max_abs"},   null: not set
+//!   "offenders": [{"scope": "output" | "site", "name", "site" (sites only), "metric",
+//!                  "value", "budget", "reason"}],
+//!   "within_budget": true,
+//!   "caution": "..."
+//! }
+//! METRICS = {"elements", "compared", "max_abs", "mean_abs", "rms", "max_rel", "rel_floor",
+//!            "cosine", "cosine_note" (when a side is all zero), "atol", "rtol", "beyond_tol",
+//!            "beyond_tol_share", "nan_mismatches", "inf_mismatches", "nonfinite_agreeing"}
+//! ```
+//! See [`super::metrics`] for the definitions and [`super::budget`] for what offends.
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use super::budget::{Budgets, Offender};
+use super::latency::{EndToEnd, SiteLatency};
+use super::metrics::{Drift, Tolerance, Top1};
+use super::range::InputRange;
+use crate::scan::ParamValue;
+
+/// Printed with every report.
+pub const CAUTION: &str = "Drift measured on sample inputs certifies nothing: for a model in a \
+medical, automotive or other safety-relevant role, validate the converted model the way your \
+domain requires (its standards, test sets and sign-off), not with this verdict.";
+
+/// The result of comparing an original model with its rewrite.
+#[derive(Debug, Clone, Serialize)]
+pub struct DriftReport {
+    pub model_a: String,
+    pub model_b: String,
+    pub samples: usize,
+    pub input_source: String,
+    pub tolerance: Tolerance,
+    pub sites: Vec<SiteDrift>,
+    pub outputs: Vec<OutputDrift>,
+    pub unmatched: Vec<UnmatchedSite>,
+    pub latency: Option<EndToEnd>,
+    pub budgets: Budgets,
+    pub offenders: Vec<Offender>,
+    pub within_budget: bool,
+    pub caution: &'static str,
+}
+
+/// One site found in both models (same output tensor, same graph).
+#[derive(Debug, Clone, Serialize)]
+pub struct SiteDrift {
+    pub id_a: String,
+    pub id_b: String,
+    pub output: String,
+    pub graph: String,
+    pub kind_a: String,
+    pub params_a: BTreeMap<String, ParamValue>,
+    pub ops_a: Vec<String>,
+    pub kind_b: String,
+    pub params_b: BTreeMap<String, ParamValue>,
+    pub ops_b: Vec<String>,
+    pub local: Option<Drift>,
+    pub local_basis: Option<LocalBasis>,
+    pub propagated: Option<Drift>,
+    pub isolation_max_abs: Option<f64>,
+    pub input_range: Option<InputRange>,
+    pub bound_over_range: Option<f64>,
+    pub bound_at: Option<f64>,
+    pub latency: Option<SiteLatency>,
+    pub notes: Vec<String>,
+}
+
+/// How a site's local drift was obtained.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum LocalBasis {
+    /// Both forms were isolated and run on the original site's input.
+    Isolated,
+    /// The rewrite left the site identical; nothing was run.
+    Identical,
+}
+
+/// One graph output.
+#[derive(Debug, Clone, Serialize)]
+pub struct OutputDrift {
+    pub name: String,
+    pub metrics: Option<Drift>,
+    pub top1_agreement: Option<Top1>,
+    pub notes: Vec<String>,
+}
+
+/// A site found in only one of the models.
+#[derive(Debug, Clone, Serialize)]
+pub struct UnmatchedSite {
+    /// `a` (original) or `b` (rewritten).
+    pub model: &'static str,
+    pub id: String,
+    pub kind: String,
+    pub output: String,
+    pub graph: String,
+}
+
+impl DriftReport {
+    /// The report as JSON (see the module doc).
+    pub fn to_json(&self) -> serde_json::Value {
+        serde_json::to_value(self).expect("a drift report serializes")
+    }
+}

@@ -36,6 +36,41 @@ pub struct Args {
     rewritten: PathBuf,
     #[command(flatten)]
     inputs: InputArgs,
+    #[command(flatten)]
+    measure: MeasureArgs,
+    /// Print JSON instead of text (schema: see the documentation of actswap::measure::report).
+    #[arg(long, help_heading = "Output")]
+    json: bool,
+}
+
+pub fn run(args: Args) -> Result<ExitCode> {
+    let opts = args.measure.options()?;
+    let original = Model::load(&args.original)?;
+    let rewritten = Model::load(&args.rewritten)?;
+    let tract = run::prepare(&original.encode(), Some(original.dir()))
+        .with_context(|| format!("'{}'", args.original.display()))?;
+    let loaded = args.inputs.load(tract.inputs())?;
+    drop(tract);
+    let opts = CompareOptions {
+        input_source: loaded.source,
+        ..opts
+    };
+    let report = measure::compare(&original, &rewritten, &loaded.samples, &opts)?;
+    if args.json {
+        output::print_json(&report.to_json())?;
+    } else {
+        output::print(&drift_table::render(&report))?;
+    }
+    Ok(if report.within_budget {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(EXIT_OVER_BUDGET)
+    })
+}
+
+/// Budgets, tolerances and latency settings, shared by `drift` and `audit`.
+#[derive(Debug, clap::Args)]
+pub struct MeasureArgs {
     /// Budget: largest max abs allowed at any output.
     #[arg(long, value_name = "X", help_heading = "Budgets")]
     max_abs: Option<f64>,
@@ -81,79 +116,54 @@ pub struct Args {
     /// Skip latency measurement.
     #[arg(long, help_heading = "Latency", conflicts_with_all = ["runs", "warmup"])]
     no_latency: bool,
-    /// Print JSON instead of text (schema: see the documentation of actswap::measure::report).
-    #[arg(long, help_heading = "Output")]
-    json: bool,
 }
 
-pub fn run(args: Args) -> Result<ExitCode> {
-    let opts = options(&args)?;
-    let original = Model::load(&args.original)?;
-    let rewritten = Model::load(&args.rewritten)?;
-    let tract = run::prepare(&original.encode(), Some(original.dir()))
-        .with_context(|| format!("'{}'", args.original.display()))?;
-    let loaded = args.inputs.load(tract.inputs())?;
-    drop(tract);
-    let opts = CompareOptions {
-        input_source: loaded.source,
-        ..opts
-    };
-    let report = measure::compare(&original, &rewritten, &loaded.samples, &opts)?;
-    if args.json {
-        output::print_json(&report.to_json())?;
-    } else {
-        output::print(&drift_table::render(&report))?;
-    }
-    Ok(if report.within_budget {
-        ExitCode::SUCCESS
-    } else {
-        ExitCode::from(EXIT_OVER_BUDGET)
-    })
-}
-
-/// Validates the flags into comparison options.
-fn options(args: &Args) -> Result<CompareOptions> {
-    for (flag, value) in [
-        ("--max-abs", args.max_abs),
-        ("--max-rel", args.max_rel),
-        ("--site-max-abs", args.site_max_abs),
-        ("--atol", Some(args.atol)),
-        ("--rtol", Some(args.rtol)),
-        ("--rel-floor", Some(args.rel_floor)),
-    ] {
-        if let Some(v) = value
-            && !(v.is_finite() && v >= 0.0)
-        {
-            bail!("{flag} must be a finite number >= 0 (got {v})");
+impl MeasureArgs {
+    /// Validates the flags into comparison options.
+    pub fn options(&self) -> Result<CompareOptions> {
+        let args = self;
+        for (flag, value) in [
+            ("--max-abs", args.max_abs),
+            ("--max-rel", args.max_rel),
+            ("--site-max-abs", args.site_max_abs),
+            ("--atol", Some(args.atol)),
+            ("--rtol", Some(args.rtol)),
+            ("--rel-floor", Some(args.rel_floor)),
+        ] {
+            if let Some(v) = value
+                && !(v.is_finite() && v >= 0.0)
+            {
+                bail!("{flag} must be a finite number >= 0 (got {v})");
+            }
         }
+        if args.rel_floor == 0.0 {
+            bail!("--rel-floor must be > 0");
+        }
+        if let Some(c) = args.min_cosine
+            && !(-1.0..=1.0).contains(&c)
+        {
+            bail!("--min-cosine must lie in [-1, 1] (got {c})");
+        }
+        if args.runs == 0 {
+            bail!("--runs must be at least 1");
+        }
+        Ok(CompareOptions {
+            tolerance: Tolerance {
+                atol: args.atol,
+                rtol: args.rtol,
+                rel_floor: args.rel_floor,
+            },
+            budgets: Budgets {
+                max_abs: args.max_abs,
+                max_rel: args.max_rel,
+                min_cosine: args.min_cosine,
+                site_max_abs: args.site_max_abs,
+            },
+            latency: (!args.no_latency).then_some(LatencyOptions {
+                runs: args.runs,
+                warmup: args.warmup,
+            }),
+            input_source: String::new(),
+        })
     }
-    if args.rel_floor == 0.0 {
-        bail!("--rel-floor must be > 0");
-    }
-    if let Some(c) = args.min_cosine
-        && !(-1.0..=1.0).contains(&c)
-    {
-        bail!("--min-cosine must lie in [-1, 1] (got {c})");
-    }
-    if args.runs == 0 {
-        bail!("--runs must be at least 1");
-    }
-    Ok(CompareOptions {
-        tolerance: Tolerance {
-            atol: args.atol,
-            rtol: args.rtol,
-            rel_floor: args.rel_floor,
-        },
-        budgets: Budgets {
-            max_abs: args.max_abs,
-            max_rel: args.max_rel,
-            min_cosine: args.min_cosine,
-            site_max_abs: args.site_max_abs,
-        },
-        latency: (!args.no_latency).then_some(LatencyOptions {
-            runs: args.runs,
-            warmup: args.warmup,
-        }),
-        input_source: String::new(),
-    })
 }

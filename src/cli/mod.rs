@@ -3,6 +3,7 @@
 //! Exit codes: 0 success; 1 a budget was exceeded or a site could not be served; 2 an error
 //! (bad input, unreadable model, invalid options).
 
+mod audit;
 mod catalog;
 mod drift;
 mod info;
@@ -41,12 +42,13 @@ struct Cli {
 
 #[derive(Debug, Subcommand)]
 enum Command {
-    Info(info::Args),
+    Audit(Box<audit::Args>),
     Scan(scan::Args),
     Swap(swap::Args),
+    Drift(Box<drift::Args>),
     Targets(targets::Args),
     Catalog(catalog::Args),
-    Drift(Box<drift::Args>),
+    Info(info::Args),
 }
 
 /// Runs the command line and maps the outcome to an exit code; errors print as one line.
@@ -90,6 +92,7 @@ fn run(cli: Cli) -> Result<ExitCode> {
         Command::Swap(args) => swap::run(args),
         Command::Targets(args) => targets::run(args),
         Command::Catalog(args) => catalog::run(args),
+        Command::Audit(args) => audit::run(*args),
         Command::Drift(args) => drift::run(*args),
     }
 }

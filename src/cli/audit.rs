@@ -1,0 +1,114 @@
+//! `actswap audit`: the whole job on one model. Scan, plan, rewrite in memory, run both models
+//! with tract, and report drift and latency per site and per output; write the rewritten model
+//! only with `-o`.
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use anyhow::{Context, Result, bail};
+
+use crate::measure::{self, CompareOptions};
+use crate::onnx::{Model, ModelIndex, SaveOptions};
+use crate::plan::profile::Profile;
+use crate::plan::request::Request;
+use crate::plan::{Plan, Policy};
+use crate::report::{drift_table, plan_table};
+use crate::{rewrite, run, scan};
+
+use super::drift::MeasureArgs;
+use super::inputs::InputArgs;
+use super::{EXIT_OVER_BUDGET, output};
+
+#[derive(Debug, clap::Args)]
+#[command(
+    about = "Convert a model for a target and prove the swap: drift per site and output, latency",
+    after_help = "Examples:\n  actswap audit sample-models/orchard-grader.onnx --target piecewise-linear --dim batch=1\n  actswap audit model.onnx --to silu=hard_swish --input image=batch.npy --max-abs 1e-2 -o model.fast.onnx\n  actswap audit model.onnx --target core-opset13 --samples 8 --json > audit.json\n\nExit codes: 0 within budget, 1 over budget or unserved sites, 2 error."
+)]
+pub struct Args {
+    /// The ONNX model file (never modified).
+    model: PathBuf,
+    /// A conversion: KIND=FORM, KIND=SUBSTITUTE or KIND=SUBSTITUTE:FORM; KIND may be '*'.
+    #[arg(long = "to", value_name = "KIND=FORM", conflicts_with = "target")]
+    to: Vec<String>,
+    /// A target profile: a built-in name (see `actswap targets`) or a TOML file.
+    #[arg(long, value_name = "PROFILE")]
+    target: Option<String>,
+    /// Only these sites (ids from `actswap scan`; repeatable).
+    #[arg(long = "site", value_name = "ID")]
+    sites: Vec<String>,
+    /// Also write the rewritten model here.
+    #[arg(short = 'o', long = "output", value_name = "OUT")]
+    output: Option<PathBuf>,
+    #[command(flatten)]
+    inputs: InputArgs,
+    #[command(flatten)]
+    measure: MeasureArgs,
+    /// Print JSON instead of text: {"plan": ..., "drift": ...}.
+    #[arg(long, help_heading = "Output")]
+    json: bool,
+}
+
+pub fn run(args: Args) -> Result<ExitCode> {
+    let opts = args.measure.options()?;
+    let requests: Vec<Request> = args
+        .to
+        .iter()
+        .map(|t| Request::parse(t))
+        .collect::<Result<_>>()?;
+    let profile = args.target.as_deref().map(Profile::load).transpose()?;
+    if requests.is_empty() && profile.is_none() {
+        bail!("say what to convert to: --to KIND=FORM (repeatable) or --target PROFILE");
+    }
+    let model = Model::load(&args.model)?;
+    let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
+    let mut sites = scan::scan(&index).sites;
+    if !args.sites.is_empty() {
+        for id in &args.sites {
+            if !sites.iter().any(|s| &s.id == id) {
+                bail!(
+                    "no site '{id}' in '{}' (see `actswap scan`)",
+                    args.model.display()
+                );
+            }
+        }
+        sites.retain(|s| args.sites.contains(&s.id));
+    }
+    let policy = match &profile {
+        Some(p) => Policy::Target(p),
+        None => Policy::Requests(&requests),
+    };
+    let plan = Plan::build(&index, sites, &policy);
+    if !args.json {
+        output::print(&plan_table::render(&plan))?;
+    }
+    let (rewritten, _) = rewrite::apply(&model, &index, &plan)?;
+    let tract = run::prepare(&model.encode(), Some(model.dir()))
+        .with_context(|| format!("'{}'", args.model.display()))?;
+    let loaded = args.inputs.load(tract.inputs())?;
+    drop(tract);
+    let opts = CompareOptions {
+        input_source: loaded.source,
+        ..opts
+    };
+    let report = measure::compare(&model, &rewritten, &loaded.samples, &opts)?;
+    if let Some(out) = &args.output {
+        rewritten.save(out, &SaveOptions::default())?;
+    }
+    if args.json {
+        let mut v = serde_json::json!({"plan": plan.to_json(), "drift": report.to_json()});
+        if let Some(out) = &args.output {
+            v["written"] = out.display().to_string().into();
+        }
+        output::print_json(&v)?;
+    } else {
+        output::print(&format!("\n{}", drift_table::render(&report)))?;
+        if let Some(out) = &args.output {
+            output::print(&format!("wrote {}\n", out.display()))?;
+        }
+    }
+    Ok(if report.within_budget && plan.unserved() == 0 {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(EXIT_OVER_BUDGET)
+    })
+}

@@ -5,18 +5,16 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use anyhow::{Context, Result, bail};
+use anyhow::{Context, Result};
 
 use crate::measure::{self, CompareOptions};
 use crate::onnx::{Model, ModelIndex, SaveOptions};
-use crate::plan::profile::Profile;
-use crate::plan::request::Request;
-use crate::plan::{Plan, Policy};
 use crate::report::{drift_table, plan_table};
-use crate::{rewrite, run, scan};
+use crate::{rewrite, run};
 
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
+use super::plan_args::PlanArgs;
 use super::{EXIT_OVER_BUDGET, output};
 
 #[derive(Debug, clap::Args)]
@@ -27,15 +25,8 @@ use super::{EXIT_OVER_BUDGET, output};
 pub struct Args {
     /// The ONNX model file (never modified).
     model: PathBuf,
-    /// A conversion: KIND=FORM, KIND=SUBSTITUTE or KIND=SUBSTITUTE:FORM; KIND may be '*'.
-    #[arg(long = "to", value_name = "KIND=FORM", conflicts_with = "target")]
-    to: Vec<String>,
-    /// A target profile: a built-in name (see `actswap targets`) or a TOML file.
-    #[arg(long, value_name = "PROFILE")]
-    target: Option<String>,
-    /// Only these sites (ids from `actswap scan`; repeatable).
-    #[arg(long = "site", value_name = "ID")]
-    sites: Vec<String>,
+    #[command(flatten)]
+    plan: PlanArgs,
     /// Also write the rewritten model here.
     #[arg(short = 'o', long = "output", value_name = "OUT")]
     output: Option<PathBuf>,
@@ -50,34 +41,10 @@ pub struct Args {
 
 pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
-    let requests: Vec<Request> = args
-        .to
-        .iter()
-        .map(|t| Request::parse(t))
-        .collect::<Result<_>>()?;
-    let profile = args.target.as_deref().map(Profile::load).transpose()?;
-    if requests.is_empty() && profile.is_none() {
-        bail!("say what to convert to: --to KIND=FORM (repeatable) or --target PROFILE");
-    }
+    let conversion = args.plan.conversion()?;
     let model = Model::load(&args.model)?;
     let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
-    let mut sites = scan::scan(&index).sites;
-    if !args.sites.is_empty() {
-        for id in &args.sites {
-            if !sites.iter().any(|s| &s.id == id) {
-                bail!(
-                    "no site '{id}' in '{}' (see `actswap scan`)",
-                    args.model.display()
-                );
-            }
-        }
-        sites.retain(|s| args.sites.contains(&s.id));
-    }
-    let policy = match &profile {
-        Some(p) => Policy::Target(p),
-        None => Policy::Requests(&requests),
-    };
-    let plan = Plan::build(&index, sites, &policy);
+    let plan = conversion.plan(&index, &args.model)?;
     if !args.json {
         output::print(&plan_table::render(&plan))?;
     }

@@ -9,6 +9,7 @@ mod drift;
 mod info;
 mod inputs;
 mod output;
+mod plan_args;
 mod scan;
 mod swap;
 mod targets;

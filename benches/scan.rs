@@ -1,7 +1,7 @@
 //! Scan time on generated graphs of 10k, 100k and 1M nodes. Each block is a Mul by a per-block
 //! constant (a stand-in for a layer), a SiLU (Sigmoid, Mul), an exact GELU spelled as five ops
 //! and a gating Mul(x, Sigmoid(y)). Reports the time per graph and the time ratio per doubling
-//! of the node count (2.00 is linear).
+//! of the node count (2.00 is linear). `cargo bench --bench scan -- N...` picks other sizes.
 
 use std::time::Instant;
 
@@ -55,7 +55,14 @@ fn graph(nodes: usize) -> Model {
 }
 
 fn main() {
-    let sizes = [10_000usize, 100_000, 1_000_000];
+    // `cargo bench --bench scan -- N...` scans graphs of N nodes instead.
+    let mut sizes: Vec<usize> = std::env::args()
+        .skip(1)
+        .filter_map(|a| a.parse().ok())
+        .collect();
+    if sizes.is_empty() {
+        sizes = vec![10_000, 100_000, 1_000_000];
+    }
     let mut times = Vec::new();
     println!(
         "{:>10}  {:>10}  {:>8}  {:>12}",

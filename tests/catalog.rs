@@ -1,8 +1,9 @@
 //! The activation catalogue against outside sources: published formulas and check values, the
 //! ONNX operator schemas, and worst-case errors of the standard approximations.
 //!
-//! Every check names its source. "reference-facts.md" values were computed with Python's `math`
-//! module in double precision from the formulas of the cited paper or ONNX schema.
+//! Every check names its source. Check values with more digits than a paper prints were computed
+//! with Python's `math` module in double precision from the formula of the cited paper or ONNX
+//! schema.
 
 // Check values keep the digits their sources give.
 #![allow(clippy::excessive_precision)]
@@ -36,7 +37,7 @@ fn derivative(f: impl Fn(f64) -> f64, x: f64) -> f64 {
 
 #[test]
 fn swish_and_silu_check_values() {
-    // reference-facts.md: Elfwing et al. 2017, arXiv:1702.03118 (SiLU minimum); the minimum is
+    // Elfwing et al. 2017, arXiv:1702.03118 (SiLU minimum); the minimum is
     // at x* = -1 - W(1/e), where f(x*) = x* + 1.
     let x_min = -1.2784645427610738;
     close(
@@ -57,7 +58,7 @@ fn swish_and_silu_check_values() {
         1e-10,
         "silu'(x*)",
     );
-    // reference-facts.md: Ramachandran et al. 2017, arXiv:1710.05941 (swish, beta = 1).
+    // Ramachandran et al. 2017, arXiv:1710.05941 (swish, beta = 1), evaluated with Python's math.
     close(eval("silu", 1.0, &[]), 0.7310585786300049, EXACT, "silu(1)");
     close(
         eval("silu", -1.0, &[]),
@@ -81,7 +82,7 @@ fn swish_and_silu_check_values() {
 
 #[test]
 fn swish_derivative_by_central_difference() {
-    // reference-facts.md: Ramachandran et al. 2017, arXiv:1710.05941, f' = f + s(x)(1 - f) for
+    // Ramachandran et al. 2017, arXiv:1710.05941, f' = f + s(x)(1 - f) for
     // beta = 1: f'(0) = 0.5, f'(2) = 1.0907842488 (given to 10 decimals).
     let f = |x| eval("swish", x, &[1.0]);
     close(derivative(f, 0.0), 0.5, 1e-10, "swish'(0)");
@@ -90,7 +91,7 @@ fn swish_derivative_by_central_difference() {
 
 #[test]
 fn swish_limits_in_beta() {
-    // reference-facts.md: Ramachandran et al. 2017, arXiv:1710.05941 sec. 4 (from memory):
+    // Ramachandran et al. 2017, arXiv:1710.05941 sec. 4 (from memory):
     // beta -> 0 gives x / 2, beta -> inf gives ReLU.
     for i in -80..=80 {
         let x = f64::from(i) / 8.0;
@@ -115,7 +116,7 @@ fn swish_limits_in_beta() {
 
 #[test]
 fn gelu_check_values() {
-    // reference-facts.md: Hendrycks & Gimpel 2016, arXiv:1606.08415; ONNX Gelu (opset 20).
+    // Hendrycks & Gimpel 2016, arXiv:1606.08415; ONNX Gelu (opset 20).
     close(eval("gelu", 1.0, &[]), 0.8413447460685429, EXACT, "gelu(1)");
     close(
         eval("gelu", -1.0, &[]),
@@ -135,7 +136,8 @@ fn gelu_check_values() {
         EXACT,
         "x s(1.702 x) at 1",
     );
-    // reference-facts.md: GELU minimum -0.16997120748 at -0.75179152604 (11 digits given).
+    // GELU minimum -0.16997120748 at -0.75179152604: Hendrycks & Gimpel's formula minimized
+    // numerically in double precision (11 digits kept).
     let x_min = -0.75179152604;
     close(
         eval("gelu", x_min, &[]),
@@ -153,7 +155,7 @@ fn gelu_check_values() {
 
 #[test]
 fn gelu_tanh_equals_the_tanh_formula() {
-    // reference-facts.md: 0.5 (1 + tanh z) = s(2z); the formula of Hendrycks & Gimpel 2016,
+    // 0.5 (1 + tanh z) = s(2z) (an identity of tanh); the formula of Hendrycks & Gimpel 2016,
     // arXiv:1606.08415 with sqrt(2/pi) and 0.044715, evaluated as written.
     let c = (2.0 / std::f64::consts::PI).sqrt();
     for i in -400..=400 {
@@ -170,7 +172,7 @@ fn gelu_tanh_equals_the_tanh_formula() {
 
 #[test]
 fn mish_check_values() {
-    // reference-facts.md: Misra 2019, arXiv:1908.08681.
+    // Misra 2019, arXiv:1908.08681, evaluated with Python's math.
     close(eval("mish", 1.0, &[]), 0.8650983882673103, EXACT, "mish(1)");
     close(
         eval("mish", -1.0, &[]),
@@ -178,7 +180,8 @@ fn mish_check_values() {
         EXACT,
         "mish(-1)",
     );
-    // reference-facts.md: minimum -0.308843413017 at -1.192431217807 (12 digits given).
+    // Minimum -0.308843413017 at -1.192431217807: Misra's formula minimized numerically in
+    // double precision (12 digits kept).
     let x_min = -1.192431217807;
     close(
         eval("mish", x_min, &[]),
@@ -196,7 +199,7 @@ fn mish_check_values() {
 
 #[test]
 fn hard_swish_check_values() {
-    // reference-facts.md: Howard et al. 2019, arXiv:1905.02244 (x * ReLU6(x + 3) / 6) and the
+    // Howard et al. 2019, arXiv:1905.02244 (x * ReLU6(x + 3) / 6) and the
     // ONNX HardSwish formula x * max(0, min(1, x / 6 + 0.5)).
     close(
         eval("hard_swish", 1.0, &[]),
@@ -233,7 +236,7 @@ fn hard_swish_check_values() {
 
 #[test]
 fn exponential_family_check_values() {
-    // reference-facts.md: Clevert et al. 2015, arXiv:1511.07289; ONNX Elu (alpha = 1).
+    // Clevert et al. 2015, arXiv:1511.07289; ONNX Elu (alpha = 1).
     close(
         eval("elu", -1.0, &[1.0]),
         -0.6321205588285577,
@@ -241,7 +244,7 @@ fn exponential_family_check_values() {
         "elu(-1)",
     );
     close(eval("elu", 2.0, &[1.0]), 2.0, EXACT, "elu(2)");
-    // reference-facts.md: Klambauer et al. 2017, arXiv:1706.02515, constants per PyTorch docs.
+    // Klambauer et al. 2017, arXiv:1706.02515, constants per PyTorch docs.
     let paper = [
         1.6732632423543772848170429916717,
         1.0507009873554804934193349852946,
@@ -258,7 +261,7 @@ fn exponential_family_check_values() {
         EXACT,
         "selu(1)",
     );
-    // reference-facts.md: ONNX Celu, celu(-1, alpha = 2).
+    // ONNX Celu formula, celu(-1, alpha = 2), evaluated with Python's math.
     close(
         eval("celu", -1.0, &[2.0]),
         -0.7869386805747332,
@@ -267,7 +270,7 @@ fn exponential_family_check_values() {
     );
     for i in -60..=60 {
         let x = f64::from(i) / 10.0;
-        // reference-facts.md: ONNX Celu function body Div, Elu, Mul: alpha * elu(x / alpha).
+        // ONNX Celu function body Div, Elu, Mul: alpha * elu(x / alpha).
         for a in [0.5, 1.0, 2.0] {
             let body = a * eval("elu", x / a, &[1.0]);
             close(eval("celu", x, &[a]), body, 1e-15, "celu vs body");
@@ -277,18 +280,18 @@ fn exponential_family_check_values() {
 
 #[test]
 fn softplus_sigmoid_and_friends() {
-    // reference-facts.md: ONNX Softplus ln(exp(x) + 1): softplus(0) = ln 2.
+    // ONNX Softplus ln(exp(x) + 1): softplus(0) = ln 2.
     close(
         eval("softplus", 0.0, &[]),
         std::f64::consts::LN_2,
         EXACT,
         "softplus(0)",
     );
-    // reference-facts.md (float32 pitfalls): the stable forms stay finite where exp overflows.
+    // Common practice: the stable forms stay finite where exp overflows.
     assert_eq!(eval("softplus", 1000.0, &[]), 1000.0);
     assert_eq!(eval("sigmoid", 1000.0, &[]), 1.0);
     assert_eq!(eval("sigmoid", -1000.0, &[]), 0.0);
-    // ONNX Sigmoid 1 / (1 + exp(-x)) at 0 (reference-facts.md: ONNX Sigmoid).
+    // ONNX Sigmoid 1 / (1 + exp(-x)) at 0.
     close(eval("sigmoid", 0.0, &[]), 0.5, EXACT, "sigmoid(0)");
     for i in -60..=60 {
         let x = f64::from(i) / 4.0;
@@ -313,7 +316,7 @@ fn softplus_sigmoid_and_friends() {
 
 #[test]
 fn piecewise_kinds_follow_the_onnx_formulas() {
-    // reference-facts.md: ONNX LeakyRelu (alpha * x below 0), ThresholdedRelu (x above alpha,
+    // ONNX operator schemas: LeakyRelu (alpha * x below 0), ThresholdedRelu (x above alpha,
     // strictly), HardSigmoid max(0, min(1, a x + b)), Clip (min > max gives max, opset 13).
     close(
         eval("leaky_relu", -1.0, &[0.01]),
@@ -342,7 +345,7 @@ fn piecewise_kinds_follow_the_onnx_formulas() {
 
 #[test]
 fn onnx_spec_defaults() {
-    // reference-facts.md: ONNX operator schemas (defaults column).
+    // ONNX operator schemas (attribute defaults).
     let default = |id: &str, name: &str| {
         let k = kind(id);
         k.params[k.param_index(name).unwrap()].default
@@ -372,7 +375,7 @@ fn onnx_spec_defaults() {
 
 #[test]
 fn fused_ops_and_the_opset_that_introduced_them() {
-    // reference-facts.md: ONNX operator versions.
+    // ONNX operator schemas (the version history of each op).
     let first = |id: &str| {
         let f = &kind(id).fused[0];
         (f.domain, f.op_type, f.since)
@@ -414,14 +417,15 @@ fn over_reals(from: &str, fp: &[f64], to: &str, tp: &[f64]) -> ErrorBound {
 
 #[test]
 fn worst_case_errors_over_the_real_line() {
-    // reference-facts.md: max abs error over R (digits as given there).
+    // Max abs error over R of the two published formulas, found numerically in double precision
+    // (digits as kept): Hendrycks & Gimpel 2016 for GELU, its tanh form and x s(1.702 x).
     let e = over_reals("gelu", &[], "gelu_tanh", &[]);
     close(e.value, 4.7323552e-4, 5e-12, "tanh-GELU vs GELU");
     close(e.at.abs(), 2.69894, 5e-6, "tanh-GELU vs GELU at");
     let e = over_reals("gelu", &[], "swish", &[1.702]);
     close(e.value, 2.0334872e-2, 5e-10, "x s(1.702 x) vs GELU");
     close(e.at.abs(), 2.27040, 5e-6, "x s(1.702 x) vs GELU at");
-    // reference-facts.md: Howard et al. 2019 hard-swish vs swish, 3 / (1 + e^3) at +-3.
+    // Howard et al. 2019 hard-swish vs swish, 3 / (1 + e^3) at +-3.
     let e = over_reals("silu", &[], "hard_swish", &[]);
     close(e.value, 0.14227761953270035, 1e-16, "hard-swish vs swish");
     close(
@@ -508,14 +512,14 @@ fn the_rule_table_carries_the_bounds() {
     );
     let any = table.get("any-to-relu").unwrap();
     let e = any.error_over_reals(kind("gelu"), &[]).unwrap();
-    // |gelu - relu| peaks at the GELU minimum (reference-facts.md: -0.16997120748).
+    // |gelu - relu| peaks at the GELU minimum (Hendrycks & Gimpel's formula, minimized numerically: -0.16997120748).
     close(e.value, 0.16997120748, 5e-12, "gelu to relu");
     close(e.at.abs(), 0.75179152604, 1e-7, "gelu to relu at");
 }
 
 #[test]
 fn onnx_function_bodies_are_identified() {
-    // reference-facts.md: ONNX function bodies with their float32 constants, evaluated in f64.
+    // ONNX operator schemas: function bodies with their float32 constants, evaluated in f64.
     let sixth = f64::from(0.16666667163372f32);
     let hard_swish_body = |x: f64| x * (sixth * x + 0.5).clamp(0.0, 1.0);
     let sqrt2 = f64::from(std::f32::consts::SQRT_2);

@@ -2,11 +2,11 @@
 //!
 //! Sources:
 //! - Values: each kind's f64 reference formula from the catalogue, which is the formula of the
-//!   ONNX operator schema or paper it cites (the formulas themselves are checked against
-//!   reference-facts.md in tests/catalog.rs), evaluated with the parameters rounded to float32
-//!   as a model stores them; and check values from reference-facts.md (computed there with
-//!   Python's `math` module from the cited papers' formulas).
-//! - Op versions: the ONNX operator schemas (reference-facts.md, "ONNX ops").
+//!   ONNX operator schema or paper it cites (the formulas themselves are checked against the
+//!   papers' check values in tests/catalog.rs), evaluated with the parameters rounded to float32
+//!   as a model stores them; and check values computed with Python's `math` module from the
+//!   cited papers' formulas.
+//! - Op versions: the ONNX operator schemas.
 //! - Running: tract 0.23.9, plain. Its Celu with alpha != 1 and Swish with alpha != 1 are wrong
 //!   (TRACT-NOTES, verified against numpy), so those two fused forms run through the project's
 //!   runner (`actswap::run`), whose loaders follow the ONNX Celu and Swish formulas and which is
@@ -116,7 +116,7 @@ fn per_channel(values: [f64; CHANNELS]) -> ParamArg {
     }
 }
 
-/// The ONNX Selu defaults, the float32 roundings of the paper's constants (reference-facts.md).
+/// The ONNX Selu defaults, the float32 roundings of the paper's constants (ONNX Selu schema).
 const SELU: [f64; 2] = [1.67326319217681884765625, 1.05070102214813232421875];
 
 #[rustfmt::skip]
@@ -544,7 +544,7 @@ fn the_case_table_covers_every_kind_and_form() {
 
 #[test]
 fn check_values_from_the_sources() {
-    // reference-facts.md, "Check values (double)", from the papers' formulas: Elfwing et al.
+    // Check values computed in double precision from the papers' formulas: Elfwing et al.
     // 2017 (SiLU), Hendrycks & Gimpel 2016 (GELU and its tanh form), Misra 2019 (Mish), Howard
     // et al. 2019 (hard-swish), Clevert et al. 2015 (ELU), Klambauer et al. 2017 (SELU, paper
     // constants; the ONNX float32 defaults used here differ by 5e-8), Barron 2017 (CELU).
@@ -583,15 +583,14 @@ fn check_values_from_the_sources() {
             // Close: the input and the constants are float32 roundings of the sources' values.
             assert!(
                 (got - want).abs() <= 1e-6 * (1.0 + want.abs()),
-                "{id} {form} at {x}: got {got}, want {want} (reference-facts.md)"
+                "{id} {form} at {x}: got {got}, want {want} (check value)"
             );
         }
     }
 }
 
-/// The least opset of each form per the ONNX operator schemas (reference-facts.md, "ONNX ops",
-/// and the versions in each kind's catalogue entry): the fused op's version, or for a primitive
-/// form the newest of its ops (Erf 9, Where 9, Max / Min with broadcasting 8, Add / Mul with
+/// The least opset of each form per the ONNX operator schemas (and the versions in each kind's
+/// catalogue entry): the fused op's version, or for a primitive form the newest of its ops (Erf 9, Where 9, Max / Min with broadcasting 8, Add / Mul with
 /// broadcasting 7).
 #[rustfmt::skip]
 const LEAST_OPSET: &[(&str, i64, i64)] = &[

@@ -228,7 +228,7 @@ fn greenhouse_climate() -> Sample {
     let seed = 104;
     let mut n = Net::new(seed, &["sensors"]);
     let s = |v: f32| Param::Scalar(v);
-    // Selu's defaults as float32 (ONNX Selu; reference-facts.md).
+    // Selu's defaults as float32 (ONNX Selu schema).
     let (selu_a, selu_g) = (1.673_263_2_f32, 1.050_701_f32);
     #[allow(clippy::type_complexity)]
     let acts: Vec<(&str, &str, Vec<_>, Vec<(&str, Param)>)> = vec![

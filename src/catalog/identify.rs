@@ -253,8 +253,8 @@ mod tests {
         let sqrt2 = r32(std::f64::consts::SQRT_2);
         let c = r32((2.0 / std::f64::consts::PI).sqrt());
         let k3 = r32(0.044715);
-        let sixth = r32(0.16666667163372); // reference-facts.md: ONNX HardSwish function body
-        // ONNX function bodies (reference-facts.md: ONNX Gelu, HardSwish, Softplus, Mish) and
+        let sixth = r32(0.16666667163372); // ONNX HardSwish function body
+        // ONNX function bodies (ONNX Gelu, HardSwish, Softplus, Mish schemas) and
         // exporter decompositions, evaluated in f64 with float32 constants.
         let chains: [(&str, Chain, f64); 7] = [
             (

@@ -158,6 +158,11 @@ pub fn get(id: &str) -> Option<&'static Kind> {
     REGISTRY.iter().copied().find(|k| k.id == id)
 }
 
+/// The registry position of the kind called `id`.
+pub fn position(id: &str) -> Option<usize> {
+    REGISTRY.iter().position(|k| k.id == id)
+}
+
 /// Breakpoints of a kind with no branches.
 fn smooth(_: &[f64]) -> Vec<f64> {
     Vec::new()

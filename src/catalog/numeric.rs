@@ -68,7 +68,7 @@ mod tests {
 
     #[test]
     fn softplus_tails() {
-        // reference-facts.md (float32 pitfalls): naive ln(1 + e^x) overflows; the stable form
+        // Common practice: naive ln(1 + e^x) overflows; the stable form
         // returns x above and e^x below.
         assert_eq!(softplus(1000.0), 1000.0);
         assert_eq!(softplus(-800.0), 0.0);

@@ -2,19 +2,20 @@
 //! with tract, and report drift and latency per site and per output; write the rewritten model
 //! only with `-o`.
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 use anyhow::{Context, Result};
 
-use crate::measure::{self, CompareOptions};
+use crate::measure::{self, CompareOptions, DriftReport};
 use crate::onnx::{Model, ModelIndex, SaveOptions};
+use crate::plan::Plan;
 use crate::report::{drift_table, plan_table};
 use crate::{rewrite, run};
 
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
-use super::plan_args::PlanArgs;
+use super::plan_args::{Conversion, PlanArgs};
 use super::{EXIT_OVER_BUDGET, output};
 
 #[derive(Debug, clap::Args)]
@@ -42,40 +43,67 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let conversion = args.plan.conversion()?;
-    let model = Model::load(&args.model)?;
-    let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
-    let plan = conversion.plan(&index, &args.model)?;
-    if !args.json {
-        output::print(&plan_table::render(&plan))?;
-    }
-    let (rewritten, _) = rewrite::apply(&model, &index, &plan)?;
-    let tract = run::prepare(&model.encode(), Some(model.dir()))
-        .with_context(|| format!("'{}'", args.model.display()))?;
-    let loaded = args.inputs.load(tract.inputs())?;
-    drop(tract);
-    let opts = CompareOptions {
-        input_source: loaded.source,
-        ..opts
-    };
-    let report = measure::compare(&model, &rewritten, &loaded.samples, &opts)?;
+    let audit = audit_model(&args.model, &conversion, &args.inputs, &opts)?;
     if let Some(out) = &args.output {
-        rewritten.save(out, &SaveOptions::default())?;
+        audit.rewritten.save(out, &SaveOptions::default())?;
     }
     if args.json {
-        let mut v = serde_json::json!({"plan": plan.to_json(), "drift": report.to_json()});
+        let mut v =
+            serde_json::json!({"plan": audit.plan.to_json(), "drift": audit.drift.to_json()});
         if let Some(out) = &args.output {
             v["written"] = out.display().to_string().into();
         }
         output::print_json(&v)?;
     } else {
-        output::print(&format!("\n{}", drift_table::render(&report)))?;
+        output::print(&plan_table::render(&audit.plan))?;
+        output::print(&format!("\n{}", drift_table::render(&audit.drift)))?;
         if let Some(out) = &args.output {
             output::print(&format!("wrote {}\n", out.display()))?;
         }
     }
-    Ok(if report.within_budget && plan.unserved() == 0 {
+    Ok(if audit.passes() {
         ExitCode::SUCCESS
     } else {
         ExitCode::from(EXIT_OVER_BUDGET)
+    })
+}
+
+/// One model scanned, planned, rewritten in memory and measured.
+pub struct Audit {
+    pub plan: Plan,
+    pub rewritten: Model,
+    pub drift: DriftReport,
+}
+
+impl Audit {
+    /// Within every budget, with every planned site served.
+    pub fn passes(&self) -> bool {
+        self.drift.within_budget && self.plan.unserved() == 0
+    }
+}
+
+/// Audits the model at `path`: the job `audit` does for one model and `batch` for each.
+pub fn audit_model(
+    path: &Path,
+    conversion: &Conversion,
+    inputs: &InputArgs,
+    opts: &CompareOptions,
+) -> Result<Audit> {
+    let model = Model::load(path)?;
+    let index = ModelIndex::build(&model).with_context(|| format!("'{}'", path.display()))?;
+    let plan = conversion.plan(&index, path)?;
+    let (rewritten, _) = rewrite::apply(&model, &index, &plan)?;
+    let specs =
+        run::input_specs(&model.encode()).with_context(|| format!("'{}'", path.display()))?;
+    let loaded = inputs.load(&specs)?;
+    let opts = CompareOptions {
+        input_source: loaded.source,
+        ..opts.clone()
+    };
+    let drift = measure::compare(&model, &rewritten, &loaded.samples, &opts)?;
+    Ok(Audit {
+        plan,
+        rewritten,
+        drift,
     })
 }

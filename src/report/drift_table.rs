@@ -198,7 +198,7 @@ fn kind(id: &str, params: &BTreeMap<String, ParamValue>) -> String {
 }
 
 /// A figure: 0, four significant digits in [1e-3, 1e4), scientific otherwise.
-fn num(x: f64) -> String {
+pub(crate) fn num(x: f64) -> String {
     if x == 0.0 {
         "0".into()
     } else if !x.is_finite() {

@@ -36,11 +36,7 @@ impl Expansion for Celu {
         inputs: &'p [TensorProxy],
         outputs: &'p [TensorProxy],
     ) -> InferenceResult {
-        check_input_arity(inputs, 1)?;
-        check_output_arity(outputs, 1)?;
-        s.equals(&inputs[0].datum_type, &outputs[0].datum_type)?;
-        s.equals(&inputs[0].shape, &outputs[0].shape)?;
-        Ok(())
+        super::framework::unary_rules(s, inputs, outputs)
     }
 
     fn wire(

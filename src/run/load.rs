@@ -86,6 +86,17 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
     })
 }
 
+/// The inputs a model takes (graph inputs that are not initializers, in graph order), read from
+/// its bytes without loading it into tract.
+pub fn input_specs(model_bytes: &[u8]) -> Result<Vec<InputSpec>, RunError> {
+    let proto = ModelProto::decode(model_bytes).map_err(|e| RunError::Decode(e.to_string()))?;
+    let graph = proto
+        .graph
+        .as_ref()
+        .ok_or_else(|| RunError::Decode("no graph".to_string()))?;
+    read_inputs(graph)
+}
+
 /// Refuses a graph whose initializers live in external files, which need the model's folder.
 fn refuse_external_data(graph: &GraphProto) -> Result<(), RunError> {
     let external = graph

@@ -29,7 +29,7 @@ mod tensor;
 
 pub use error::RunError;
 pub use execute::Plan;
-pub use load::{TractModel, prepare};
+pub use load::{TractModel, input_specs, prepare};
 pub use signature::{Dim, InputSpec};
 pub use tensor::{NamedTensor, Sample, to_f64_array};
 pub use tract_onnx::prelude::{DatumType, Tensor};

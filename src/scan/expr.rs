@@ -156,19 +156,69 @@ impl Expr {
     }
 
     /// A key equal for chains that compute the same function (same ops, wiring and constants),
-    /// so identification runs once per distinct spelling.
-    pub fn key(&self) -> String {
-        let mut k = String::new();
+    /// so identification runs once per distinct spelling. Every part is length-prefixed, so
+    /// different chains never share a key.
+    pub fn key(&self) -> Vec<u64> {
+        let mut k = Vec::with_capacity(4 * self.steps.len() + 8);
         for s in &self.steps {
-            k.push_str(&format!("{:?}{:?};", s.op, s.args));
+            s.op.encode(&mut k);
+            k.push(s.args.len() as u64);
+            k.extend(s.args.iter().map(|a| match *a {
+                Operand::X => 1 << 32,
+                Operand::Step(j) => (2 << 32) | j as u64,
+                Operand::Const(j) => (3 << 32) | j as u64,
+                Operand::None => 4 << 32,
+            }));
         }
         for c in &self.consts {
-            for v in &c.values {
-                k.push_str(&format!("{:x},", v.to_bits()));
-            }
-            k.push('|');
+            k.push(c.values.len() as u64);
+            k.extend(c.values.iter().map(|v| v.to_bits()));
         }
         k
+    }
+}
+
+impl Op {
+    /// Appends a code for the op and its payload to a chain key.
+    fn encode(&self, k: &mut Vec<u64>) {
+        let tag = match self {
+            Op::Add => 0,
+            Op::Sub => 1,
+            Op::Mul => 2,
+            Op::Div => 3,
+            Op::Pow => 4,
+            Op::Exp => 5,
+            Op::Log => 6,
+            Op::Sqrt => 7,
+            Op::Neg => 8,
+            Op::Abs => 9,
+            Op::Reciprocal => 10,
+            Op::Erf => 11,
+            Op::Max => 12,
+            Op::Min => 13,
+            Op::Sum => 14,
+            Op::Where => 15,
+            Op::Greater => 16,
+            Op::Less => 17,
+            Op::GreaterOrEqual => 18,
+            Op::LessOrEqual => 19,
+            Op::Equal => 20,
+            Op::Pass => 21,
+            Op::Truncate => 22,
+            Op::Clip => 23,
+            Op::PRelu => 24,
+            Op::ClipAttr(lo, hi) => {
+                k.extend([25, lo.to_bits(), hi.to_bits()]);
+                return;
+            }
+            Op::Kind(kind, p) => {
+                let at = catalog::position(kind.id).expect("catalogue kind");
+                k.extend([26, at as u64, p.len() as u64]);
+                k.extend(p.iter().map(|v| v.to_bits()));
+                return;
+            }
+        };
+        k.push(tag);
     }
 }
 

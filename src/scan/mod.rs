@@ -13,11 +13,13 @@ mod fused;
 pub mod site;
 
 use std::collections::{BTreeMap, HashMap, HashSet};
+use std::rc::Rc;
 
 use serde::Serialize;
 
 use crate::catalog::{self, Kind};
 use crate::onnx::index::{GraphIndex, ModelIndex};
+use crate::onnx::proto::NodeProto;
 use expr::{Const, Expr, MAX_CHAIN, Op, Operand, Step};
 pub use site::{Form, ParamValue, Site};
 
@@ -62,7 +64,7 @@ pub fn scan(index: &ModelIndex) -> ScanReport {
 }
 
 /// Identification results by chain key, shared across graphs.
-type Cache = HashMap<String, Option<Identified>>;
+type Cache = HashMap<Vec<u64>, Option<Identified>>;
 
 #[derive(Debug, Clone)]
 struct Identified {
@@ -76,11 +78,12 @@ struct GraphScan<'a, 'm> {
     graph: &'a GraphIndex<'m>,
     /// Position of each node in the topological order.
     pos: Vec<usize>,
+    /// Each node's element-wise step (None: not element-wise).
+    ops: Vec<Option<Op>>,
     /// Constant values by tensor name (None: not a constant).
-    consts: HashMap<String, Option<Const>>,
+    consts: HashMap<&'m str, Option<Rc<Const>>>,
     covered: Vec<bool>,
     cache: &'a mut Cache,
-    opset: i64,
 }
 
 impl<'a, 'm> GraphScan<'a, 'm> {
@@ -90,15 +93,16 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         for (p, &n) in graph.order().iter().enumerate() {
             pos[n] = p;
         }
+        let opset = graph.opset("").unwrap_or(1);
         GraphScan {
             index,
             g,
             graph,
             pos,
+            ops: graph.nodes.iter().map(|n| expr::op_of(n, opset)).collect(),
             consts: HashMap::new(),
             covered: vec![false; graph.nodes.len()],
             cache,
-            opset: graph.opset("").unwrap_or(1),
         }
     }
 
@@ -120,32 +124,28 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         sites
     }
 
-    fn constant(&mut self, name: &str) -> Option<Const> {
+    fn constant(&mut self, name: &'m str) -> Option<Rc<Const>> {
         if let Some(c) = self.consts.get(name) {
             return c.clone();
         }
-        let v = self.index.constant(self.g, name).map(|t| Const {
-            values: t.data,
-            dims: t.dims,
+        let v = self.index.constant(self.g, name).map(|t| {
+            Rc::new(Const {
+                values: t.data,
+                dims: t.dims,
+            })
         });
-        self.consts.insert(name.to_string(), v.clone());
+        self.consts.insert(name, v.clone());
         v
     }
 
     /// Inputs of node `n` that carry computed (non-constant) data.
-    fn dynamic_inputs(&mut self, n: usize) -> Vec<String> {
-        let node = &self.graph.nodes[n];
-        let k = expr::data_inputs(node);
-        let names: Vec<String> = node
-            .input
-            .iter()
-            .take(k)
-            .filter(|s| !s.is_empty())
-            .cloned()
-            .collect();
-        let mut out = Vec::new();
-        for name in names {
-            if self.constant(&name).is_none() && !out.contains(&name) {
+    fn dynamic_inputs(&mut self, n: usize) -> Vec<&'m str> {
+        let nodes: &'m [NodeProto] = self.graph.nodes;
+        let node = &nodes[n];
+        let mut out: Vec<&'m str> = Vec::new();
+        for name in node.input.iter().take(expr::data_inputs(node)) {
+            let name = name.as_str();
+            if !name.is_empty() && !out.contains(&name) && self.constant(name).is_none() {
                 out.push(name);
             }
         }
@@ -158,8 +158,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         if node.output.len() != 1 {
             return None;
         }
-        let elementwise = expr::op_of(node, self.opset).is_some();
-        if elementwise {
+        if self.ops[n].is_some() {
             let chains = self.chains(n);
             for (input, nodes) in chains.iter().rev() {
                 if nodes.len() == 1 && fused::is_fused_op(&self.graph.nodes[n]) {
@@ -178,15 +177,15 @@ impl<'a, 'm> GraphScan<'a, 'm> {
 
     /// Single-input chains ending at node `n`, smallest first: (input tensor, nodes in
     /// topological order).
-    fn chains(&mut self, n: usize) -> Vec<(String, Vec<usize>)> {
+    fn chains(&mut self, n: usize) -> Vec<(&'m str, Vec<usize>)> {
         let mut out = Vec::new();
         let mut set: Vec<usize> = vec![n];
-        let mut frontier: Vec<String> = self.dynamic_inputs(n);
+        let mut frontier: Vec<&'m str> = self.dynamic_inputs(n);
         while !frontier.is_empty() && set.len() <= MAX_CHAIN {
             if frontier.len() == 1 {
                 let mut nodes = set.clone();
                 nodes.sort_by_key(|&i| self.pos[i]);
-                out.push((frontier[0].clone(), nodes));
+                out.push((frontier[0], nodes));
             }
             // Expand the frontier tensor produced last.
             let (k, p) = match frontier
@@ -198,11 +197,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 Some((k, Some(p))) => (k, p),
                 _ => break,
             };
-            let pnode = &self.graph.nodes[p];
-            if self.covered[p]
-                || pnode.output.len() != 1
-                || expr::op_of(pnode, self.opset).is_none()
-            {
+            if self.covered[p] || self.graph.nodes[p].output.len() != 1 || self.ops[p].is_none() {
                 break;
             }
             frontier.swap_remove(k);
@@ -259,31 +254,32 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     fn compile(&mut self, input: &str, nodes: &[usize]) -> Option<Expr> {
         let mut steps = Vec::with_capacity(nodes.len());
         let mut consts: Vec<Const> = Vec::new();
-        let mut const_names: HashMap<String, usize> = HashMap::new();
-        let mut step_of: HashMap<&str, usize> = HashMap::new();
-        let graph = self.graph;
-        for (i, &n) in nodes.iter().enumerate() {
-            let node = &graph.nodes[n];
-            let op = expr::op_of(node, self.opset)?;
+        // Chains are short: linear lookups beat hashing here.
+        let mut const_names: Vec<&'m str> = Vec::new();
+        let mut step_outputs: Vec<&'m str> = Vec::with_capacity(nodes.len());
+        let all: &'m [NodeProto] = self.graph.nodes;
+        for &n in nodes {
+            let node = &all[n];
+            let op = self.ops[n].clone()?;
             let mut args = Vec::new();
             for name in node.input.iter().take(expr::data_inputs(node)) {
+                let name = name.as_str();
                 let a = if name.is_empty() {
                     Operand::None
                 } else if name == input {
                     Operand::X
-                } else if let Some(&s) = step_of.get(name.as_str()) {
+                } else if let Some(s) = step_outputs.iter().position(|&t| t == name) {
                     Operand::Step(s)
-                } else if let Some(&c) = const_names.get(name) {
+                } else if let Some(c) = const_names.iter().position(|&t| t == name) {
                     Operand::Const(c)
                 } else {
-                    let c = self.constant(name)?;
-                    consts.push(c);
-                    const_names.insert(name.clone(), consts.len() - 1);
+                    consts.push(Const::clone(&*self.constant(name)?));
+                    const_names.push(name);
                     Operand::Const(consts.len() - 1)
                 };
                 args.push(a);
             }
-            step_of.insert(node.output[0].as_str(), i);
+            step_outputs.push(node.output[0].as_str());
             steps.push(Step { op, args });
         }
         let multi: Vec<&Const> = consts.iter().filter(|c| c.values.len() > 1).collect();
@@ -306,11 +302,11 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     }
 
     fn fused(&mut self, n: usize) -> Option<Site> {
-        let node = &self.graph.nodes[n];
+        let all: &'m [NodeProto] = self.graph.nodes;
+        let node = &all[n];
         let opset = self.graph.opset(node.domain()).unwrap_or(1);
-        let inputs = node.input.clone();
-        let mut values: Vec<Option<Const>> = Vec::new();
-        for name in &inputs {
+        let mut values: Vec<Option<Rc<Const>>> = Vec::new();
+        for name in &node.input {
             values.push(if name.is_empty() {
                 None
             } else {
@@ -319,8 +315,8 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         }
         let constant = |i: usize| {
             values.get(i).cloned().flatten().map(|c| fused::ConstInput {
-                values: c.values,
-                dims: c.dims,
+                values: c.values.clone(),
+                dims: c.dims.clone(),
             })
         };
         let f = fused::classify(node, opset, &constant)?;
@@ -345,6 +341,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         form: Form,
     ) -> Site {
         let graph = self.graph;
+        let all: &'m [NodeProto] = graph.nodes;
         let last = *nodes.last().expect("non-empty chain");
         let output = graph.nodes[last].output[0].clone();
         let inside: HashSet<usize> = nodes.iter().copied().collect();
@@ -375,8 +372,8 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         }
         let mut constants: Vec<String> = Vec::new();
         for &n in nodes {
-            for (k, name) in graph.nodes[n].input.iter().enumerate() {
-                if name.is_empty() || name == input || k >= expr::data_inputs(&graph.nodes[n]) {
+            for (k, name) in all[n].input.iter().enumerate() {
+                if name.is_empty() || name == input || k >= expr::data_inputs(&all[n]) {
                     continue;
                 }
                 let produced_inside = graph.producer(name).is_some_and(|p| inside.contains(&p));

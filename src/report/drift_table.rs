@@ -183,7 +183,7 @@ fn change(a: String, b: String) -> String {
 }
 
 /// `swish(beta=1.702)`, `prelu(slope=[8 per channel])`, `silu`.
-fn kind(id: &str, params: &BTreeMap<String, ParamValue>) -> String {
+pub(crate) fn kind(id: &str, params: &BTreeMap<String, ParamValue>) -> String {
     if params.is_empty() {
         return id.to_string();
     }
@@ -198,7 +198,7 @@ fn kind(id: &str, params: &BTreeMap<String, ParamValue>) -> String {
 }
 
 /// A figure: 0, four significant digits in [1e-3, 1e4), scientific otherwise.
-fn num(x: f64) -> String {
+pub(crate) fn num(x: f64) -> String {
     if x == 0.0 {
         "0".into()
     } else if !x.is_finite() {

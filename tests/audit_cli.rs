@@ -125,6 +125,7 @@ fn audit_with_o_writes_what_swap_writes() {
         "{text}"
     );
     assert!(text.contains("caution: Drift measured on sample inputs certifies nothing"));
+    assert!(text.contains("\naudit: pass\n"), "{text}");
 
     let out = actswap(
         &[

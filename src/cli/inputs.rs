@@ -9,7 +9,8 @@
 //!   `--range` spans mean +- 2 standard deviations, about 95% of the draws (default: mean 0,
 //!   standard deviation 1, i.e. `-2,2`).
 //!
-//! Symbolic input dims take sizes from `--dim NAME=SIZE`; an unset one is an error naming it.
+//! Symbolic input dims take sizes from `--dim NAME=SIZE`; an unset one is an error naming it, and
+//! so is a `--dim` no input uses (except in `batch`, whose models share the flags).
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -19,7 +20,7 @@ use anyhow::{Context, Result, bail};
 use crate::run::inputs::{
     Binding, DEFAULT_MAX_ELEMENTS, Distribution, InputLoader, RandomInputs, parse_dim_size,
 };
-use crate::run::{InputSpec, Sample};
+use crate::run::{Dim, InputSpec, Sample};
 
 /// Random input distributions.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -60,6 +61,10 @@ pub struct InputArgs {
     /// Refuse any input tensor with more elements than this.
     #[arg(long, value_name = "N", default_value_t = DEFAULT_MAX_ELEMENTS)]
     pub max_elements: usize,
+    /// Ignore a `--dim` no input of the model uses (a batch shares its dims across models)
+    /// instead of refusing it as a likely typo.
+    #[arg(skip)]
+    pub ignore_unused_dims: bool,
 }
 
 /// Samples and a description of where they came from.
@@ -92,7 +97,15 @@ impl InputArgs {
                 source: format!("files {}", self.input.join(", ")),
             });
         }
-        let spec = self.random()?;
+        let mut spec = self.random()?;
+        if self.ignore_unused_dims {
+            spec.dims.retain(|name, _| {
+                inputs
+                    .iter()
+                    .flat_map(|i| i.dims.iter().flatten())
+                    .any(|d| matches!(d, Dim::Named(n) if n == name))
+            });
+        }
         let samples = loader.random(&spec)?;
         Ok(LoadedSamples {
             samples,

@@ -4,6 +4,7 @@
 //! (bad input, unreadable model, invalid options).
 
 mod audit;
+mod batch;
 mod catalog;
 mod drift;
 mod info;
@@ -44,6 +45,7 @@ struct Cli {
 #[derive(Debug, Subcommand)]
 enum Command {
     Audit(Box<audit::Args>),
+    Batch(Box<batch::Args>),
     Scan(scan::Args),
     Swap(swap::Args),
     Drift(Box<drift::Args>),
@@ -94,6 +96,7 @@ fn run(cli: Cli) -> Result<ExitCode> {
         Command::Targets(args) => targets::run(args),
         Command::Catalog(args) => catalog::run(args),
         Command::Audit(args) => audit::run(*args),
+        Command::Batch(args) => batch::run(*args),
         Command::Drift(args) => drift::run(*args),
     }
 }

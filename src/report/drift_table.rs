@@ -183,7 +183,7 @@ fn change(a: String, b: String) -> String {
 }
 
 /// `swish(beta=1.702)`, `prelu(slope=[8 per channel])`, `silu`.
-fn kind(id: &str, params: &BTreeMap<String, ParamValue>) -> String {
+pub(crate) fn kind(id: &str, params: &BTreeMap<String, ParamValue>) -> String {
     if params.is_empty() {
         return id.to_string();
     }

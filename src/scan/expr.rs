@@ -77,7 +77,7 @@ pub struct Const {
 #[derive(Debug, Clone)]
 pub struct Expr {
     pub steps: Vec<Step>,
-    pub consts: Vec<Const>,
+    pub consts: Vec<std::rc::Rc<Const>>,
     /// 1 for a scalar function, else the element count shared by every multi-element constant.
     pub channels: usize,
     /// Shape of the multi-element constants, when there are any.

@@ -11,6 +11,7 @@
 mod expr;
 mod fused;
 pub mod site;
+mod wiring;
 
 use std::collections::{BTreeMap, HashMap, HashSet};
 use std::rc::Rc;
@@ -22,6 +23,7 @@ use crate::onnx::index::{GraphIndex, ModelIndex};
 use crate::onnx::proto::NodeProto;
 use expr::{Const, Expr, MAX_CHAIN, Op, Operand, Step};
 pub use site::{Form, ParamValue, Site};
+use wiring::{ABSENT, Wiring};
 
 /// Quick probes tried before the catalogue's full probe set: they reject most wrong kinds cheaply.
 const QUICK_PROBES: &[f64] = &[
@@ -43,7 +45,7 @@ pub struct ScanReport {
 
 /// Scans every graph of the model (main, subgraphs, functions).
 pub fn scan(index: &ModelIndex) -> ScanReport {
-    let mut cache = HashMap::new();
+    let mut cache = Cache::default();
     let mut sites = Vec::new();
     for g in 0..index.graphs.len() {
         sites.extend(GraphScan::new(index, g, &mut cache).run());
@@ -64,7 +66,7 @@ pub fn scan(index: &ModelIndex) -> ScanReport {
 }
 
 /// Identification results by chain key, shared across graphs.
-type Cache = HashMap<Vec<u64>, Option<Identified>>;
+type Cache = HashMap<Vec<u64>, Option<Identified>, foldhash::fast::RandomState>;
 
 #[derive(Debug, Clone)]
 struct Identified {
@@ -76,12 +78,13 @@ struct GraphScan<'a, 'm> {
     index: &'a ModelIndex<'m>,
     g: usize,
     graph: &'a GraphIndex<'m>,
+    wiring: Wiring<'m>,
     /// Position of each node in the topological order.
     pos: Vec<usize>,
     /// Each node's element-wise step (None: not element-wise).
     ops: Vec<Option<Op>>,
-    /// Constant values by tensor name (None: not a constant).
-    consts: HashMap<&'m str, Option<Rc<Const>>>,
+    /// Constant values by tensor id, filled on first use (inner None: not a constant).
+    consts: Vec<Option<Option<Rc<Const>>>>,
     covered: Vec<bool>,
     cache: &'a mut Cache,
 }
@@ -94,13 +97,15 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             pos[n] = p;
         }
         let opset = graph.opset("").unwrap_or(1);
+        let wiring = Wiring::new(graph);
         GraphScan {
             index,
             g,
             graph,
             pos,
             ops: graph.nodes.iter().map(|n| expr::op_of(n, opset)).collect(),
-            consts: HashMap::new(),
+            consts: vec![None; wiring.tensor_count()],
+            wiring,
             covered: vec![false; graph.nodes.len()],
             cache,
         }
@@ -124,29 +129,31 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         sites
     }
 
-    fn constant(&mut self, name: &'m str) -> Option<Rc<Const>> {
-        if let Some(c) = self.consts.get(name) {
+    /// The value of a tensor of this graph's nodes when it is a constant.
+    fn constant_id(&mut self, id: u32) -> Option<Rc<Const>> {
+        if id == ABSENT {
+            return None;
+        }
+        if let Some(c) = &self.consts[id as usize] {
             return c.clone();
         }
-        let v = self.index.constant(self.g, name).map(|t| {
+        let v = self.index.constant(self.g, self.wiring.name(id)).map(|t| {
             Rc::new(Const {
                 values: t.data,
                 dims: t.dims,
             })
         });
-        self.consts.insert(name, v.clone());
+        self.consts[id as usize] = Some(v.clone());
         v
     }
 
     /// Inputs of node `n` that carry computed (non-constant) data.
-    fn dynamic_inputs(&mut self, n: usize) -> Vec<&'m str> {
-        let nodes: &'m [NodeProto] = self.graph.nodes;
-        let node = &nodes[n];
-        let mut out: Vec<&'m str> = Vec::new();
-        for name in node.input.iter().take(expr::data_inputs(node)) {
-            let name = name.as_str();
-            if !name.is_empty() && !out.contains(&name) && self.constant(name).is_none() {
-                out.push(name);
+    fn dynamic_inputs(&mut self, n: usize) -> Vec<u32> {
+        let mut out: Vec<u32> = Vec::new();
+        for k in 0..self.wiring.inputs(n).len() {
+            let id = self.wiring.inputs(n)[k];
+            if id != ABSENT && !out.contains(&id) && self.constant_id(id).is_none() {
+                out.push(id);
             }
         }
         out
@@ -155,16 +162,14 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     /// The site whose output is node `n`'s first output, if any.
     fn site_ending_at(&mut self, n: usize) -> Option<Site> {
         let node = &self.graph.nodes[n];
-        if node.output.len() != 1 {
-            return None;
-        }
+        self.wiring.output(n)?;
         if self.ops[n].is_some() {
             let chains = self.chains(n);
             for (input, nodes) in chains.iter().rev() {
-                if nodes.len() == 1 && fused::is_fused_op(&self.graph.nodes[n]) {
+                if nodes.len() == 1 && fused::is_fused_op(node) {
                     break;
                 }
-                if let Some(site) = self.decomposed(input, nodes) {
+                if let Some(site) = self.decomposed(*input, nodes) {
                     return Some(site);
                 }
             }
@@ -177,10 +182,10 @@ impl<'a, 'm> GraphScan<'a, 'm> {
 
     /// Single-input chains ending at node `n`, smallest first: (input tensor, nodes in
     /// topological order).
-    fn chains(&mut self, n: usize) -> Vec<(&'m str, Vec<usize>)> {
+    fn chains(&mut self, n: usize) -> Vec<(u32, Vec<usize>)> {
         let mut out = Vec::new();
         let mut set: Vec<usize> = vec![n];
-        let mut frontier: Vec<&'m str> = self.dynamic_inputs(n);
+        let mut frontier: Vec<u32> = self.dynamic_inputs(n);
         while !frontier.is_empty() && set.len() <= MAX_CHAIN {
             if frontier.len() == 1 {
                 let mut nodes = set.clone();
@@ -191,13 +196,13 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             let (k, p) = match frontier
                 .iter()
                 .enumerate()
-                .map(|(k, t)| (k, self.graph.producer(t)))
+                .map(|(k, &t)| (k, self.wiring.producer(t)))
                 .max_by_key(|(_, p)| p.map(|p| self.pos[p] as i64).unwrap_or(-1))
             {
                 Some((k, Some(p))) => (k, p),
                 _ => break,
             };
-            if self.covered[p] || self.graph.nodes[p].output.len() != 1 || self.ops[p].is_none() {
+            if self.covered[p] || self.wiring.output(p).is_none() || self.ops[p].is_none() {
                 break;
             }
             frontier.swap_remove(k);
@@ -212,7 +217,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     }
 
     /// Compiles and identifies a chain; the site when the catalogue recognises it.
-    fn decomposed(&mut self, input: &str, nodes: &[usize]) -> Option<Site> {
+    fn decomposed(&mut self, input: u32, nodes: &[usize]) -> Option<Site> {
         let expr = self.compile(input, nodes)?;
         let nonlinear = expr.steps.iter().any(|s| {
             !expr::is_linear(&s.op)
@@ -242,6 +247,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             }
             _ => found.kind,
         };
+        let input = self.wiring.name(input);
         let mut site = self.site(nodes, input, kind, found.params, Form::Decomposed);
         site.param_shape = expr.channel_shape.clone().filter(|_| {
             site.params
@@ -251,38 +257,40 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         Some(site)
     }
 
-    fn compile(&mut self, input: &str, nodes: &[usize]) -> Option<Expr> {
+    fn compile(&mut self, input: u32, nodes: &[usize]) -> Option<Expr> {
         let mut steps = Vec::with_capacity(nodes.len());
-        let mut consts: Vec<Const> = Vec::new();
+        let mut consts: Vec<Rc<Const>> = Vec::new();
         // Chains are short: linear lookups beat hashing here.
-        let mut const_names: Vec<&'m str> = Vec::new();
-        let mut step_outputs: Vec<&'m str> = Vec::with_capacity(nodes.len());
-        let all: &'m [NodeProto] = self.graph.nodes;
+        let mut const_ids: Vec<u32> = Vec::new();
+        let mut step_outputs: Vec<u32> = Vec::with_capacity(nodes.len());
         for &n in nodes {
-            let node = &all[n];
             let op = self.ops[n].clone()?;
-            let mut args = Vec::new();
-            for name in node.input.iter().take(expr::data_inputs(node)) {
-                let name = name.as_str();
-                let a = if name.is_empty() {
+            let mut args = Vec::with_capacity(self.wiring.inputs(n).len());
+            for k in 0..self.wiring.inputs(n).len() {
+                let id = self.wiring.inputs(n)[k];
+                let a = if id == ABSENT {
                     Operand::None
-                } else if name == input {
+                } else if id == input {
                     Operand::X
-                } else if let Some(s) = step_outputs.iter().position(|&t| t == name) {
+                } else if let Some(s) = step_outputs.iter().position(|&t| t == id) {
                     Operand::Step(s)
-                } else if let Some(c) = const_names.iter().position(|&t| t == name) {
+                } else if let Some(c) = const_ids.iter().position(|&t| t == id) {
                     Operand::Const(c)
                 } else {
-                    consts.push(Const::clone(&*self.constant(name)?));
-                    const_names.push(name);
+                    consts.push(self.constant_id(id)?);
+                    const_ids.push(id);
                     Operand::Const(consts.len() - 1)
                 };
                 args.push(a);
             }
-            step_outputs.push(node.output[0].as_str());
+            step_outputs.push(self.wiring.output(n)?);
             steps.push(Step { op, args });
         }
-        let multi: Vec<&Const> = consts.iter().filter(|c| c.values.len() > 1).collect();
+        let multi: Vec<&Const> = consts
+            .iter()
+            .map(|c| &**c)
+            .filter(|c| c.values.len() > 1)
+            .collect();
         let channels = multi.first().map_or(1, |c| c.values.len());
         if multi
             .iter()
@@ -305,14 +313,9 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         let all: &'m [NodeProto] = self.graph.nodes;
         let node = &all[n];
         let opset = self.graph.opset(node.domain()).unwrap_or(1);
-        let mut values: Vec<Option<Rc<Const>>> = Vec::new();
-        for name in &node.input {
-            values.push(if name.is_empty() {
-                None
-            } else {
-                self.constant(name)
-            });
-        }
+        let values: Vec<Option<Rc<Const>>> = (0..self.wiring.inputs(n).len())
+            .map(|k| self.constant_id(self.wiring.inputs(n)[k]))
+            .collect();
         let constant = |i: usize| {
             values.get(i).cloned().flatten().map(|c| fused::ConstInput {
                 values: c.values.clone(),
@@ -341,7 +344,6 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         form: Form,
     ) -> Site {
         let graph = self.graph;
-        let all: &'m [NodeProto] = graph.nodes;
         let last = *nodes.last().expect("non-empty chain");
         let output = graph.nodes[last].output[0].clone();
         let inside: HashSet<usize> = nodes.iter().copied().collect();
@@ -372,13 +374,21 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         }
         let mut constants: Vec<String> = Vec::new();
         for &n in nodes {
-            for (k, name) in all[n].input.iter().enumerate() {
-                if name.is_empty() || name == input || k >= expr::data_inputs(&all[n]) {
+            for k in 0..self.wiring.inputs(n).len() {
+                let id = self.wiring.inputs(n)[k];
+                if id == ABSENT || self.wiring.name(id) == input {
                     continue;
                 }
-                let produced_inside = graph.producer(name).is_some_and(|p| inside.contains(&p));
-                if !produced_inside && !constants.contains(name) && self.constant(name).is_some() {
-                    constants.push(name.clone());
+                let name = self.wiring.name(id);
+                let produced_inside = self
+                    .wiring
+                    .producer(id)
+                    .is_some_and(|p| inside.contains(&p));
+                if !produced_inside
+                    && !constants.iter().any(|c| c == name)
+                    && self.constant_id(id).is_some()
+                {
+                    constants.push(name.to_string());
                 }
             }
         }

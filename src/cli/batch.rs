@@ -1,0 +1,208 @@
+//! `actswap batch`: `audit` over many models, several at a time, writing each converted model
+//! under the output folder and summarizing them all. A model that fails is listed with its error
+//! and nothing is written for it; the others go on.
+//!
+//! Exit codes: 0 every model within budget, 1 some model over budget or with unserved sites, 2 some
+//! model failed (or the batch itself could not start).
+
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use std::time::Instant;
+
+use anyhow::{Context, Result};
+
+use crate::batch::{self, BatchReport, Job, ModelRow};
+use crate::onnx::SaveOptions;
+use crate::onnx::model::write_atomic;
+use crate::report::batch_table;
+use crate::report::html::{self, ModelSection};
+use crate::report::summary::summarize;
+
+use super::audit::{Audit, audit_model};
+use super::drift::MeasureArgs;
+use super::inputs::InputArgs;
+use super::plan_args::{Conversion, PlanArgs};
+use super::{EXIT_ERROR, EXIT_OVER_BUDGET, output};
+
+#[derive(Debug, clap::Args)]
+#[command(
+    about = "Convert and audit every model of a folder for a target, several at a time",
+    long_about = "Find every .onnx file below the given folders (and the files given by name), \
+convert and audit each one as `audit` does, and write the converted models under OUTDIR in the \
+same layout, with their external data beside them. A model that fails is listed with its error \
+and nothing is written for it; the other models go on. Prints a summary per model and in total; \
+--json, --markdown and --report give it as JSON, as Markdown for a CI job summary and as a \
+self-contained HTML page. Drift on sample inputs certifies nothing for safety-relevant uses: \
+validate as your domain requires.",
+    after_help = "Examples:\n  actswap batch exported/ --target piecewise-linear --dim batch=1 -o converted/\n  actswap batch exported/ --to silu=hard_swish --max-abs 1e-2 -o converted/ --markdown summary.md --report batch.html\n\nExit codes: 0 all within budget, 1 some over budget or unserved, 2 some model failed."
+)]
+pub struct Args {
+    /// Model files, or folders searched for .onnx files (inputs are never modified).
+    #[arg(required = true, value_name = "DIR_OR_FILE")]
+    paths: Vec<PathBuf>,
+    #[command(flatten)]
+    plan: PlanArgs,
+    /// Folder the converted models are written to, in the layout they were found in.
+    #[arg(short = 'o', long = "output", value_name = "OUTDIR", required = true)]
+    out_dir: PathBuf,
+    #[command(flatten)]
+    inputs: InputArgs,
+    #[command(flatten)]
+    measure: MeasureArgs,
+    /// Models converted at the same time [default: the number of cores]. Latency figures are
+    /// steadiest with 1.
+    #[arg(short = 'j', long, value_name = "N")]
+    jobs: Option<usize>,
+    /// Print the summary as JSON instead of text.
+    #[arg(long, help_heading = "Output")]
+    json: bool,
+    /// Also write the summary as Markdown (for a CI job summary).
+    #[arg(long, value_name = "FILE.md", help_heading = "Output")]
+    markdown: Option<PathBuf>,
+    /// Also write a self-contained HTML report of every model.
+    #[arg(long, value_name = "FILE.html", help_heading = "Output")]
+    report: Option<PathBuf>,
+}
+
+pub fn run(args: Args) -> Result<ExitCode> {
+    let opts = args.measure.options()?;
+    let conversion = args.plan.conversion()?;
+    let jobs = batch::discover(&args.paths, &args.out_dir)?;
+    let threads = args
+        .jobs
+        .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()))
+        .max(1);
+    let inputs = InputArgs {
+        ignore_unused_dims: true,
+        ..args.inputs.clone()
+    };
+    let progress = Progress::new(jobs.len());
+    let results = batch::run_ordered(
+        &jobs,
+        threads,
+        |job| convert(job, &args.out_dir, &conversion, &inputs, &opts),
+        |i, r| progress.finished(&jobs[i], r),
+    );
+    progress.clear();
+    let rows: Vec<ModelRow> = jobs
+        .iter()
+        .zip(&results)
+        .map(|(job, r)| match r {
+            Ok(a) => ModelRow::converted(
+                args.out_dir.join(&job.relative).display().to_string(),
+                summarize(&a.plan, &a.drift),
+            ),
+            Err(e) => ModelRow::failed(
+                &job.source.display().to_string(),
+                &super::one_line(&format!("{e:#}")),
+            ),
+        })
+        .collect();
+    let report = BatchReport::new(rows);
+    if let Some(path) = &args.markdown {
+        write_atomic(path, batch_table::markdown(&report).as_bytes())?;
+    }
+    if let Some(path) = &args.report {
+        let sections: Vec<ModelSection> = jobs
+            .iter()
+            .zip(&results)
+            .map(|(job, r)| ModelSection {
+                name: job.source.display().to_string(),
+                plan: r.as_ref().ok().map(|a| &a.plan),
+                drift: r.as_ref().ok().map(|a| &a.drift),
+                error: r.as_ref().err().map(|e| super::one_line(&format!("{e:#}"))),
+            })
+            .collect();
+        write_atomic(path, html::render("actswap batch", &sections).as_bytes())?;
+    }
+    if args.json {
+        output::print_json(&report.to_json())?;
+    } else {
+        output::print(&batch_table::text(&report))?;
+    }
+    Ok(ExitCode::from(if report.totals.errors > 0 {
+        EXIT_ERROR
+    } else if report.totals.passed < report.totals.models {
+        EXIT_OVER_BUDGET
+    } else {
+        0
+    }))
+}
+
+/// Audits one model and writes its conversion; nothing is written when any step fails.
+fn convert(
+    job: &Job,
+    out_dir: &Path,
+    conversion: &Conversion,
+    inputs: &InputArgs,
+    opts: &crate::measure::CompareOptions,
+) -> Result<Audit> {
+    let audit = audit_model(&job.source, conversion, inputs, opts)?;
+    let out = out_dir.join(&job.relative);
+    if let Some(parent) = out.parent() {
+        std::fs::create_dir_all(parent)
+            .with_context(|| format!("cannot create '{}'", parent.display()))?;
+    }
+    audit.rewritten.save(&out, &SaveOptions::default())?;
+    Ok(audit)
+}
+
+/// A progress bar on a terminal; plain lines on standard error otherwise.
+struct Progress {
+    bar: Option<indicatif::ProgressBar>,
+    total: usize,
+    done: std::sync::atomic::AtomicUsize,
+    start: Instant,
+}
+
+impl Progress {
+    fn new(total: usize) -> Self {
+        let bar = std::io::stderr().is_terminal().then(|| {
+            let bar = indicatif::ProgressBar::new(total as u64);
+            bar.set_style(
+                indicatif::ProgressStyle::with_template(
+                    "{elapsed_precise} [{bar:30}] {pos}/{len} models {msg}",
+                )
+                .expect("a valid template")
+                .progress_chars("=> "),
+            );
+            bar
+        });
+        Progress {
+            bar,
+            total,
+            done: Default::default(),
+            start: Instant::now(),
+        }
+    }
+
+    fn finished(&self, job: &Job, result: &Result<Audit>) {
+        let n = self.done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+        let verdict = match result {
+            Ok(a) if a.passes() => "pass".to_string(),
+            Ok(a) if a.plan.unserved() > 0 => "unserved sites".to_string(),
+            Ok(_) => "over budget".to_string(),
+            Err(e) => format!("error: {}", super::one_line(&format!("{e:#}"))),
+        };
+        let line = format!(
+            "[{n}/{}] {}: {verdict} ({:.1} s)",
+            self.total,
+            job.source.display(),
+            self.start.elapsed().as_secs_f64()
+        );
+        match &self.bar {
+            Some(bar) => {
+                bar.println(line);
+                bar.inc(1);
+            }
+            None => eprintln!("actswap: {line}"),
+        }
+    }
+
+    fn clear(&self) {
+        if let Some(bar) = &self.bar {
+            bar.finish_and_clear();
+        }
+    }
+}

@@ -1,0 +1,158 @@
+//! One model's outcome in a few figures: what the plan did with its sites, the worst drift, the
+//! latency ratio and a verdict. The HTML overview, and summaries over many models, are made of
+//! these.
+
+use serde::Serialize;
+
+use crate::measure::DriftReport;
+use crate::plan::{Action, Plan};
+
+/// What a model's audit comes to.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Verdict {
+    /// Every site served and every figure within budget.
+    Pass,
+    /// Some figure exceeded its budget (all sites were served).
+    OverBudget,
+    /// Some site has no form the target accepts; this outranks drift, since the model cannot
+    /// be deployed to the target as planned whatever its drift.
+    Unserved,
+    /// The model could not be audited.
+    Error,
+}
+
+impl Verdict {
+    /// The verdict as written in JSON and in the report (`pass`, `over_budget`, ...).
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Verdict::Pass => "pass",
+            Verdict::OverBudget => "over_budget",
+            Verdict::Unserved => "unserved",
+            Verdict::Error => "error",
+        }
+    }
+}
+
+/// Per-model figures. Drift figures are `None` when nothing was measured (no site, or every
+/// figure missing); a figure that is not finite serializes as `null` too.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ModelSummary {
+    /// The original model's file, as the drift report names it.
+    pub model: String,
+    /// Sites in the plan (every site scanned, or those asked for with `--site`).
+    pub sites: usize,
+    pub rewritten: usize,
+    pub kept: usize,
+    pub unserved: usize,
+    /// Largest local max abs over the sites, and the site (original id) it belongs to.
+    pub worst_local_max_abs: Option<f64>,
+    pub worst_local_site: Option<String>,
+    /// Largest propagated max abs over the sites (the site's tensor in the whole model).
+    pub worst_propagated_max_abs: Option<f64>,
+    /// Largest max abs over the graph outputs.
+    pub worst_output_max_abs: Option<f64>,
+    /// Smallest cosine similarity over the graph outputs.
+    pub lowest_output_cosine: Option<f64>,
+    /// End-to-end latency, median rewritten / median original.
+    pub latency_ratio: Option<f64>,
+    pub within_budget: bool,
+    pub verdict: Verdict,
+    /// Why the model could not be audited (verdict `error` only).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub error: Option<String>,
+}
+
+/// The figures of one audited model.
+pub fn summarize(plan: &Plan, drift: &DriftReport) -> ModelSummary {
+    let count = |f: fn(&Action) -> bool| plan.sites.iter().filter(|p| f(&p.action)).count();
+    let unserved = plan.unserved();
+    let worst_local = worst(
+        drift
+            .sites
+            .iter()
+            .filter_map(|s| s.local.as_ref().map(|d| (d.max_abs, &s.id_a))),
+        |v, w| v > w,
+    );
+    let verdict = if unserved > 0 {
+        Verdict::Unserved
+    } else if !drift.within_budget {
+        Verdict::OverBudget
+    } else {
+        Verdict::Pass
+    };
+    ModelSummary {
+        model: drift.model_a.clone(),
+        sites: plan.sites.len(),
+        rewritten: count(|a| matches!(a, Action::Rewrite(_))),
+        kept: count(|a| matches!(a, Action::Keep { .. })),
+        unserved,
+        worst_local_max_abs: worst_local.map(|w| w.0),
+        worst_local_site: worst_local.map(|w| w.1.clone()),
+        worst_propagated_max_abs: worst(
+            drift
+                .sites
+                .iter()
+                .filter_map(|s| s.propagated.as_ref().map(|d| (d.max_abs, ()))),
+            |v, w| v > w,
+        )
+        .map(|w| w.0),
+        worst_output_max_abs: worst(
+            drift
+                .outputs
+                .iter()
+                .filter_map(|o| o.metrics.as_ref().map(|m| (m.max_abs, ()))),
+            |v, w| v > w,
+        )
+        .map(|w| w.0),
+        lowest_output_cosine: worst(
+            drift
+                .outputs
+                .iter()
+                .filter_map(|o| o.metrics.as_ref().map(|m| (m.cosine, ()))),
+            |v, w| v < w,
+        )
+        .map(|w| w.0),
+        latency_ratio: drift.latency.map(|l| l.ratio),
+        within_budget: drift.within_budget && unserved == 0,
+        verdict,
+        error: None,
+    }
+}
+
+impl ModelSummary {
+    /// The summary of a model that could not be audited: counts 0, no figures, verdict `error`.
+    pub fn failed(model: &str, error: &str) -> ModelSummary {
+        ModelSummary {
+            model: model.to_string(),
+            sites: 0,
+            rewritten: 0,
+            kept: 0,
+            unserved: 0,
+            worst_local_max_abs: None,
+            worst_local_site: None,
+            worst_propagated_max_abs: None,
+            worst_output_max_abs: None,
+            lowest_output_cosine: None,
+            latency_ratio: None,
+            within_budget: false,
+            verdict: Verdict::Error,
+            error: Some(error.to_string()),
+        }
+    }
+}
+
+/// The worst of `(figure, tag)` pairs by `worse(candidate, current)`; a NaN figure is the worst
+/// of all, so it is never hidden behind a number.
+fn worst<T>(
+    values: impl Iterator<Item = (f64, T)>,
+    worse: fn(f64, f64) -> bool,
+) -> Option<(f64, T)> {
+    values.reduce(|w, v| {
+        if !w.0.is_nan() && (v.0.is_nan() || worse(v.0, w.0)) {
+            v
+        } else {
+            w
+        }
+    })
+}

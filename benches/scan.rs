@@ -1,6 +1,7 @@
 //! Scan time on generated graphs of 10k, 100k and 1M nodes. Each block is a Mul by a per-block
 //! constant (a stand-in for a layer), a SiLU (Sigmoid, Mul), an exact GELU spelled as five ops
-//! and a gating Mul(x, Sigmoid(y)). Reports the time per graph and the time ratio per doubling
+//! and a gating Mul(x, Sigmoid(y)). Reports the time per graph (index build and scan; the
+//! index alone in brackets) and the time ratio per doubling
 //! of the node count (2.00 is linear). `cargo bench --bench scan -- N...` picks other sizes.
 
 use std::time::Instant;
@@ -65,18 +66,19 @@ fn main() {
     }
     let mut times = Vec::new();
     println!(
-        "{:>10}  {:>10}  {:>8}  {:>12}",
-        "nodes", "seconds", "sites", "ns per node"
+        "{:>10}  {:>10}  {:>10}  {:>8}  {:>12}",
+        "nodes", "seconds", "(index)", "sites", "ns per node"
     );
     for &n in &sizes {
         let model = graph(n);
         let start = Instant::now();
         let index = ModelIndex::build(&model).expect("valid graph");
+        let indexed = start.elapsed().as_secs_f64();
         let report = actswap::scan::scan(&index);
         let secs = start.elapsed().as_secs_f64();
         let per_node = secs * 1e9 / n as f64;
         println!(
-            "{n:>10}  {secs:>10.3}  {:>8}  {per_node:>12.0}",
+            "{n:>10}  {secs:>10.3}  {indexed:>10.3}  {:>8}  {per_node:>12.0}",
             report.sites.len()
         );
         times.push(secs);

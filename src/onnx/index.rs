@@ -5,7 +5,9 @@
 //! error.
 
 use std::cmp::Reverse;
-use std::collections::{BTreeMap, BinaryHeap, HashMap, HashSet};
+use std::collections::{BTreeMap, BinaryHeap};
+
+use foldhash::{HashMap, HashMapExt, HashSet, HashSetExt};
 
 use anyhow::{Context, Result, bail};
 

@@ -63,7 +63,8 @@ pub enum Op {
 #[derive(Debug, Clone)]
 pub struct Step {
     pub op: Op,
-    pub args: Vec<Operand>,
+    /// Operands in input order (inline: most ops take one to three).
+    pub args: smallvec::SmallVec<[Operand; 3]>,
 }
 
 /// A constant operand.

@@ -265,7 +265,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         let mut step_outputs: Vec<u32> = Vec::with_capacity(nodes.len());
         for &n in nodes {
             let op = self.ops[n].clone()?;
-            let mut args = Vec::with_capacity(self.wiring.inputs(n).len());
+            let mut args = smallvec::SmallVec::new();
             for k in 0..self.wiring.inputs(n).len() {
                 let id = self.wiring.inputs(n)[k];
                 let a = if id == ABSENT {

@@ -24,7 +24,7 @@ pub struct Wiring<'m> {
 
 impl<'m> Wiring<'m> {
     pub fn new(graph: &GraphIndex<'m>) -> Self {
-        let mut ids: std::collections::HashMap<&'m str, u32> = Default::default();
+        let mut ids: foldhash::HashMap<&'m str, u32> = Default::default();
         let mut names: Vec<&'m str> = Vec::new();
         let mut id = |name: &'m str, names: &mut Vec<&'m str>| -> u32 {
             if name.is_empty() {

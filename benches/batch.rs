@@ -8,6 +8,9 @@ use std::path::Path;
 use std::process::Command;
 use std::time::Instant;
 
+mod support;
+use support::median;
+
 const MODEL: &str = "orchard-grader.onnx";
 const COPIES: usize = 20;
 
@@ -40,11 +43,6 @@ fn batch(models: &Path, out: &Path, jobs: &str) -> f64 {
         String::from_utf8_lossy(&run.stderr)
     );
     secs
-}
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
 }
 
 fn main() {

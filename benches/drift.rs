@@ -7,34 +7,17 @@
 
 #[path = "../tests/measure_support/mod.rs"]
 mod measure_support;
+mod support;
 
 use std::time::Instant;
 
 use actswap::measure::{CompareOptions, compare};
 use actswap::onnx::Model;
-use actswap::run::{Sample, prepare};
 use measure_support as fx;
+use support::{bare, median};
 
 /// A hand-made rewrite of the site writing a tensor.
 type Rewrite = fn(&Model, &str) -> Model;
-
-fn bare(a: &Model, b: &Model, sample: &Sample) {
-    for m in [a, b] {
-        let tract = prepare(&m.encode(), Some(m.dir())).unwrap();
-        let out = tract.compile(sample, &[]).unwrap().run(sample).unwrap();
-        std::hint::black_box(out);
-    }
-}
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    let n = v.len();
-    if n % 2 == 1 {
-        v[n / 2]
-    } else {
-        (v[n / 2 - 1] + v[n / 2]) / 2.0
-    }
-}
 
 fn main() {
     let runs: usize = std::env::args()

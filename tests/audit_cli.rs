@@ -3,30 +3,19 @@
 //! The hard-swish bound is Howard et al. 2019 (hard-swish x*ReLU6(x+3)/6 against SiLU:
 //! max |error| = 3 / (1 + e^3) = 0.14227761953270035 at |x| = 3).
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod cli_support;
 
+use std::path::{Path, PathBuf};
+
+use cli_support::{actswap, path, repo, stderr};
 use serde_json::Value;
 
 /// Published worst case of hard-swish against SiLU (Howard et al. 2019; see the module doc).
 const HARD_SWISH_BOUND: f64 = 0.14227761953270035;
 
-fn actswap(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_actswap"))
-        .args(args)
-        .output()
-        .unwrap()
-}
-
-fn path(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
-
 /// A private copy of a sample model, so the test can check nothing else appears beside it.
 fn sample_copy(dir: &Path, name: &str) -> PathBuf {
-    let src = Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("sample-models")
-        .join(name);
+    let src = repo("sample-models").join(name);
     let dst = dir.join(name);
     std::fs::copy(src, &dst).unwrap();
     dst
@@ -39,10 +28,6 @@ fn files_in(dir: &Path) -> Vec<String> {
         .collect();
     names.sort();
     names
-}
-
-fn stderr(out: &Output) -> String {
-    String::from_utf8_lossy(&out.stderr).into_owned()
 }
 
 const FAST: [&str; 6] = ["--dim", "batch=2", "--samples", "2", "--runs", "2"];

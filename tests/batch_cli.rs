@@ -4,9 +4,12 @@
 //! converts it (byte for byte), and the summary is the same whatever `--jobs` is.
 //! Exit codes: 0 all within budget, 1 some over budget or unserved, 2 some model failed.
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod cli_support;
 
+use std::path::{Path, PathBuf};
+use std::process::Output;
+
+use cli_support::{actswap, path, repo, stderr};
 use serde_json::Value;
 
 const SAMPLES: [&str; 5] = [
@@ -19,21 +22,6 @@ const SAMPLES: [&str; 5] = [
 
 /// A conversion every sample model can take: approximations for the sigmoid and erf families.
 const CONVERSION: [&str; 4] = ["--to", "silu=hard_swish", "--to", "gelu=gelu_tanh"];
-
-fn actswap(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_actswap"))
-        .args(args)
-        .output()
-        .unwrap()
-}
-
-fn path(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
-
-fn repo(rel: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(rel)
-}
 
 /// models/: the five samples, thermal/ (a model with external data) and broken.onnx.
 fn model_folder(root: &Path) -> PathBuf {
@@ -62,10 +50,6 @@ fn batch(models: &Path, out: &Path, extra: &[&str]) -> Output {
     ]
     .concat();
     actswap(&args)
-}
-
-fn stderr(out: &Output) -> String {
-    String::from_utf8_lossy(&out.stderr).into_owned()
 }
 
 #[test]

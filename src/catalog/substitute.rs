@@ -372,8 +372,15 @@ pub fn max_abs_error(from: (&Kind, &[f64]), to: (&Kind, &[f64]), lo: f64, hi: f6
     let mut peaks: Vec<usize> = (0..xs.len())
         .filter(|&i| (i == 0 || ys[i] >= ys[i - 1]) && (i == last || ys[i] >= ys[i + 1]))
         .collect();
-    peaks.sort_by(|&a, &b| ys[b].total_cmp(&ys[a]));
-    for &i in peaks.iter().take(REFINED) {
+    // The REFINED highest peaks, highest first and in sample order among equals: a full sort
+    // would spend most of its time on the flat stretches, where every sample is a peak.
+    let higher = |a: &usize, b: &usize| ys[*b].total_cmp(&ys[*a]).then(a.cmp(b));
+    if peaks.len() > REFINED {
+        peaks.select_nth_unstable_by(REFINED - 1, higher);
+        peaks.truncate(REFINED);
+    }
+    peaks.sort_by(higher);
+    for &i in &peaks {
         let (a, b) = (xs[i.saturating_sub(1)], xs[(i + 1).min(last)]);
         let (value, at) = golden_max(&err, a, b);
         offer(value, at);
@@ -397,8 +404,37 @@ pub fn max_abs_error(from: (&Kind, &[f64]), to: (&Kind, &[f64]), lo: f64, hi: f6
     best
 }
 
-/// Sample points for [`max_abs_error`] on a finite `[lo, hi]`, sorted.
+/// Sample points for [`max_abs_error`] on a finite `[lo, hi]`, sorted. The grid of the whole
+/// line is built once; the breakpoints are merged into it.
 fn samples(lo: f64, hi: f64, breaks: &[f64]) -> Vec<f64> {
+    if lo == -FAR && hi == FAR {
+        static WHOLE_LINE: std::sync::OnceLock<Vec<f64>> = std::sync::OnceLock::new();
+        let base = WHOLE_LINE.get_or_init(|| grid(-FAR, FAR, &[]));
+        let mut extra: Vec<f64> = breaks
+            .iter()
+            .copied()
+            .filter(|x| (lo..=hi).contains(x))
+            .collect();
+        extra.sort_by(f64::total_cmp);
+        let mut xs = Vec::with_capacity(base.len() + extra.len());
+        let (mut i, mut j) = (0, 0);
+        while i < base.len() || j < extra.len() {
+            if j == extra.len() || (i < base.len() && base[i].total_cmp(&extra[j]).is_le()) {
+                xs.push(base[i]);
+                i += 1;
+            } else {
+                xs.push(extra[j]);
+                j += 1;
+            }
+        }
+        xs.dedup();
+        return xs;
+    }
+    grid(lo, hi, breaks)
+}
+
+/// The sample points of `[lo, hi]` with `breaks`, sorted and without repeats.
+fn grid(lo: f64, hi: f64, breaks: &[f64]) -> Vec<f64> {
     let mut xs = vec![lo, hi];
     let mut uniform = |a: f64, b: f64, steps: usize| {
         xs.extend((0..=steps).map(|i| a + (b - a) * (i as f64 / steps as f64)));

@@ -123,7 +123,9 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
         return Ok((model.clone(), applied));
     }
     let mut proto = model.proto().clone();
-    for (g, list) in patches {
+    // Deepest graphs first: a subgraph is found through its parent's node indices, which the
+    // parent's own patches shift (the index lists every subgraph after its parent).
+    for (g, list) in patches.into_iter().rev() {
         let location = &index.graphs[g].location;
         let mut target = GraphMut::locate(&mut proto, location)
             .with_context(|| format!("graph {} not found", index.graphs[g].path))?;

@@ -147,16 +147,14 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         v
     }
 
-    /// Inputs of node `n` that carry computed (non-constant) data.
-    fn dynamic_inputs(&mut self, n: usize) -> Vec<u32> {
-        let mut out: Vec<u32> = Vec::new();
+    /// Adds the inputs of node `n` that carry computed (non-constant) data to `into`, each once.
+    fn add_dynamic_inputs(&mut self, n: usize, into: &mut Vec<u32>) {
         for k in 0..self.wiring.inputs(n).len() {
             let id = self.wiring.inputs(n)[k];
-            if id != ABSENT && !out.contains(&id) && self.constant_id(id).is_none() {
-                out.push(id);
+            if id != ABSENT && !into.contains(&id) && self.constant_id(id).is_none() {
+                into.push(id);
             }
         }
-        out
     }
 
     /// The site whose output is node `n`'s first output, if any.
@@ -185,7 +183,8 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     fn chains(&mut self, n: usize) -> Vec<(u32, Vec<usize>)> {
         let mut out = Vec::new();
         let mut set: Vec<usize> = vec![n];
-        let mut frontier: Vec<u32> = self.dynamic_inputs(n);
+        let mut frontier: Vec<u32> = Vec::new();
+        self.add_dynamic_inputs(n, &mut frontier);
         while !frontier.is_empty() && set.len() <= MAX_CHAIN {
             if frontier.len() == 1 {
                 let mut nodes = set.clone();
@@ -207,11 +206,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             }
             frontier.swap_remove(k);
             set.push(p);
-            for t in self.dynamic_inputs(p) {
-                if !frontier.contains(&t) {
-                    frontier.push(t);
-                }
-            }
+            self.add_dynamic_inputs(p, &mut frontier);
         }
         out
     }

@@ -29,6 +29,7 @@ section.model {
   background: var(--card); border: 1px solid var(--line); border-radius: 10px;
   padding: 20px 24px 22px; margin: 0 0 24px; box-shadow: 0 1px 2px rgba(30, 36, 48, 0.05);
 }
+.table-wrap + section.model { margin-top: 24px; }
 .facts { display: grid; grid-template-columns: max-content 1fr; gap: 2px 14px; margin: 0 0 8px; }
 .facts dt { color: var(--muted); }
 .facts dd { margin: 0; overflow-wrap: anywhere; }

@@ -77,26 +77,23 @@ impl Svg {
 
     /// A polyline through `points`, in order.
     pub fn polyline(&mut self, points: &[(f64, f64)], class: &str) {
-        let pts: Vec<String> = points
-            .iter()
-            .map(|&(x, y)| format!("{},{}", c(x), c(y)))
-            .collect();
-        let _ = writeln!(
-            self.body,
-            r#"<polyline class="{class}" points="{}"/>"#,
-            pts.join(" ")
-        );
+        self.points("polyline", points, class);
     }
 
     /// A closed polygon through `points`.
     pub fn polygon(&mut self, points: &[(f64, f64)], class: &str) {
+        self.points("polygon", points, class);
+    }
+
+    /// An element drawn through `points` (polyline or polygon).
+    fn points(&mut self, element: &str, points: &[(f64, f64)], class: &str) {
         let pts: Vec<String> = points
             .iter()
             .map(|&(x, y)| format!("{},{}", c(x), c(y)))
             .collect();
         let _ = writeln!(
             self.body,
-            r#"<polygon class="{class}" points="{}"/>"#,
+            r#"<{element} class="{class}" points="{}"/>"#,
             pts.join(" ")
         );
     }

@@ -105,13 +105,7 @@ pub fn sites(rows: &[SiteRow]) -> String {
         );
     }
     out.push_str("</tbody></table></div>\n");
-    if !notes.is_empty() {
-        out.push_str("<ul class=\"notes\">\n");
-        for n in notes {
-            let _ = writeln!(out, "<li>{}</li>", esc(&n));
-        }
-        out.push_str("</ul>\n");
-    }
+    push_notes(&mut out, &notes);
     out
 }
 
@@ -171,13 +165,7 @@ pub fn outputs(report: &DriftReport) -> String {
         );
     }
     out.push_str("</tbody></table></div>\n");
-    if !notes.is_empty() {
-        out.push_str("<ul class=\"notes\">\n");
-        for n in notes {
-            let _ = writeln!(out, "<li>{}</li>", esc(&n));
-        }
-        out.push_str("</ul>\n");
-    }
+    push_notes(&mut out, &notes);
     out
 }
 
@@ -333,4 +321,16 @@ fn short_reason(why: &str) -> String {
         s.push('…');
         s
     }
+}
+
+/// The notes under a table, as a list; nothing when there are none.
+fn push_notes(out: &mut String, notes: &[String]) {
+    if notes.is_empty() {
+        return;
+    }
+    out.push_str("<ul class=\"notes\">\n");
+    for n in notes {
+        let _ = writeln!(out, "<li>{}</li>", esc(n));
+    }
+    out.push_str("</ul>\n");
 }

@@ -211,37 +211,12 @@ fn exit_codes_follow_the_worst_model() {
     // being the input folder.
     let empty = tmp.path().join("empty");
     std::fs::create_dir(&empty).unwrap();
-    let run = actswap(&[&["batch", path(&empty), "-o", path(&out)][..], &CONVERSION].concat());
-    assert_eq!(run.status.code(), Some(2));
-    assert!(
-        stderr(&run).contains("no .onnx file below"),
-        "{}",
-        stderr(&run)
-    );
-    let run = actswap(
-        &[
-            &["batch", path(&a), path(&a), "-o", path(&out)][..],
-            &CONVERSION,
-        ]
-        .concat(),
-    );
-    assert_eq!(run.status.code(), Some(2));
-    assert!(
-        stderr(&run).contains("would both be written"),
-        "{}",
-        stderr(&run)
-    );
-    let run = actswap(
-        &[
-            &["batch", path(tmp.path()), "-o", path(tmp.path())][..],
-            &CONVERSION,
-        ]
-        .concat(),
-    );
-    assert_eq!(run.status.code(), Some(2));
-    assert!(
-        stderr(&run).contains("is an input folder"),
-        "{}",
-        stderr(&run)
-    );
+    let refused = |inputs: &[&str], out: &Path, message: &str| {
+        let run = actswap(&[&["batch"][..], inputs, &["-o", path(out)], &CONVERSION].concat());
+        assert_eq!(run.status.code(), Some(2), "{}", stderr(&run));
+        assert!(stderr(&run).contains(message), "{}", stderr(&run));
+    };
+    refused(&[path(&empty)], &out, "no .onnx file below");
+    refused(&[path(&a), path(&a)], &out, "would both be written");
+    refused(&[path(tmp.path())], tmp.path(), "is an input folder");
 }

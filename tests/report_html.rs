@@ -149,12 +149,7 @@ fn audit_report_holds_a_plot_per_chart_and_swapped_kind_even_over_budget() {
     let doc = Html::parse_document(&html);
     assert_self_contained(&html, &doc);
 
-    let caution: String = doc
-        .select(&sel("aside.caution"))
-        .next()
-        .unwrap()
-        .text()
-        .collect();
+    let caution = caution_text(&doc);
     assert!(caution.contains(CAUTION), "{caution}");
     assert_eq!(count(&doc, "section.model"), 1);
     assert_eq!(
@@ -365,12 +360,7 @@ fn many_models_get_an_overview_and_a_failed_one_its_error_line() {
         1,
         "gelu -> gelu_tanh"
     );
-    let caution: String = doc
-        .select(&sel("aside.caution"))
-        .next()
-        .unwrap()
-        .text()
-        .collect();
+    let caution = caution_text(&doc);
     assert!(caution.contains(CAUTION));
 }
 
@@ -437,4 +427,13 @@ fn hostile_tensor_names_are_shown_as_text() {
         "the hostile name broke no row"
     );
     assert_eq!(count(&doc, "svg.plot-curves"), 1);
+}
+
+/// The text of the report's caution box.
+fn caution_text(doc: &Html) -> String {
+    doc.select(&sel("aside.caution"))
+        .next()
+        .unwrap()
+        .text()
+        .collect()
 }

@@ -31,7 +31,7 @@ pub use discover::{Job, discover};
 pub use pool::run_ordered;
 
 use crate::measure::CAUTION;
-use crate::report::summary::{ModelSummary, Verdict};
+use crate::report::summary::{ModelSummary, Verdict, worst};
 
 /// One model's line in the summary.
 #[derive(Debug, Clone, Serialize)]
@@ -40,24 +40,6 @@ pub struct ModelRow {
     pub output: Option<String>,
     #[serde(flatten)]
     pub summary: ModelSummary,
-}
-
-impl ModelRow {
-    /// A model that was converted and written to `output`.
-    pub fn converted(output: String, summary: ModelSummary) -> ModelRow {
-        ModelRow {
-            output: Some(output),
-            summary,
-        }
-    }
-
-    /// A model that failed: listed with its error, nothing written.
-    pub fn failed(model: &str, error: &str) -> ModelRow {
-        ModelRow {
-            output: None,
-            summary: ModelSummary::failed(model, error),
-        }
-    }
 }
 
 /// Counts and worst figures over every model.
@@ -104,12 +86,17 @@ impl BatchReport {
             t.rewritten += s.rewritten;
             t.kept += s.kept;
             t.unserved_sites += s.unserved;
-            t.worst_local_max_abs = worse(t.worst_local_max_abs, s.worst_local_max_abs, f64::max);
-            t.worst_output_max_abs =
-                worse(t.worst_output_max_abs, s.worst_output_max_abs, f64::max);
-            t.lowest_output_cosine =
-                worse(t.lowest_output_cosine, s.lowest_output_cosine, f64::min);
         }
+        let figure = |f: fn(&ModelSummary) -> Option<f64>, worse: fn(f64, f64) -> bool| {
+            worst(
+                models.iter().filter_map(|m| f(&m.summary)).map(|v| (v, ())),
+                worse,
+            )
+            .map(|w| w.0)
+        };
+        t.worst_local_max_abs = figure(|s| s.worst_local_max_abs, |v, w| v > w);
+        t.worst_output_max_abs = figure(|s| s.worst_output_max_abs, |v, w| v > w);
+        t.lowest_output_cosine = figure(|s| s.lowest_output_cosine, |v, w| v < w);
         BatchReport {
             models,
             totals: t,
@@ -120,15 +107,5 @@ impl BatchReport {
     /// The report as JSON (see the module doc).
     pub fn to_json(&self) -> serde_json::Value {
         serde_json::to_value(self).expect("a batch report serializes")
-    }
-}
-
-/// The worse of two optional figures by `pick`; NaN wins, so it is never hidden.
-fn worse(a: Option<f64>, b: Option<f64>, pick: fn(f64, f64) -> f64) -> Option<f64> {
-    match (a, b) {
-        (Some(x), Some(y)) if x.is_nan() || y.is_nan() => Some(f64::NAN),
-        (Some(x), Some(y)) => Some(pick(x, y)),
-        (x, None) => x,
-        (None, y) => y,
     }
 }

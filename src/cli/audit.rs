@@ -12,7 +12,7 @@ use crate::onnx::model::write_atomic;
 use crate::onnx::{Model, ModelIndex, SaveOptions};
 use crate::plan::Plan;
 use crate::report::html::{self, ModelSection};
-use crate::report::summary::{Verdict, summarize};
+use crate::report::summary::{ModelSummary, Verdict, summarize};
 use crate::report::{drift_table, plan_table};
 use crate::{rewrite, run};
 
@@ -85,7 +85,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
             output::print(&format!("wrote report {}\n", path.display()))?;
         }
     }
-    Ok(if audit.passes() {
+    Ok(if audit.summary().verdict == Verdict::Pass {
         ExitCode::SUCCESS
     } else {
         ExitCode::from(EXIT_OVER_BUDGET)
@@ -100,9 +100,9 @@ pub struct Audit {
 }
 
 impl Audit {
-    /// Within every budget, with every planned site served.
-    pub fn passes(&self) -> bool {
-        self.drift.within_budget && self.plan.unserved() == 0
+    /// The audit in a few figures, with its verdict.
+    pub fn summary(&self) -> ModelSummary {
+        summarize(&self.plan, &self.drift)
     }
 }
 
@@ -142,7 +142,7 @@ fn file_name(p: &Path) -> String {
 
 /// The audit's verdict in words: the drift verdict and the plan's unserved sites together.
 fn verdict_line(audit: &Audit) -> String {
-    match summarize(&audit.plan, &audit.drift).verdict {
+    match audit.summary().verdict {
         Verdict::Pass => "pass".into(),
         Verdict::OverBudget => "over budget (see the offenders above)".into(),
         Verdict::Unserved => format!(

@@ -17,7 +17,6 @@ use crate::onnx::SaveOptions;
 use crate::onnx::model::write_atomic;
 use crate::report::batch_table;
 use crate::report::html::{self, ModelSection};
-use crate::report::summary::summarize;
 
 use super::audit::{Audit, audit_model};
 use super::drift::MeasureArgs;
@@ -85,18 +84,23 @@ pub fn run(args: Args) -> Result<ExitCode> {
         |i, r| progress.finished(&jobs[i], r),
     );
     progress.clear();
-    let rows: Vec<ModelRow> = jobs
+    let sections: Vec<ModelSection> = jobs
         .iter()
         .zip(&results)
-        .map(|(job, r)| match r {
-            Ok(a) => ModelRow::converted(
-                args.out_dir.join(&job.relative).display().to_string(),
-                summarize(&a.plan, &a.drift),
-            ),
-            Err(e) => ModelRow::failed(
-                &job.source.display().to_string(),
-                &super::one_line(&format!("{e:#}")),
-            ),
+        .map(|(job, r)| ModelSection {
+            name: job.source.display().to_string(),
+            plan: r.as_ref().ok().map(|a| &a.plan),
+            drift: r.as_ref().ok().map(|a| &a.drift),
+            error: r.as_ref().err().map(|e| super::one_line(&format!("{e:#}"))),
+        })
+        .collect();
+    let rows: Vec<ModelRow> = jobs
+        .iter()
+        .zip(&sections)
+        .map(|(job, s)| ModelRow {
+            output: (s.error.is_none())
+                .then(|| args.out_dir.join(&job.relative).display().to_string()),
+            summary: s.summary().expect("a section holds a result or an error"),
         })
         .collect();
     let report = BatchReport::new(rows);
@@ -104,16 +108,6 @@ pub fn run(args: Args) -> Result<ExitCode> {
         write_atomic(path, batch_table::markdown(&report).as_bytes())?;
     }
     if let Some(path) = &args.report {
-        let sections: Vec<ModelSection> = jobs
-            .iter()
-            .zip(&results)
-            .map(|(job, r)| ModelSection {
-                name: job.source.display().to_string(),
-                plan: r.as_ref().ok().map(|a| &a.plan),
-                drift: r.as_ref().ok().map(|a| &a.drift),
-                error: r.as_ref().err().map(|e| super::one_line(&format!("{e:#}"))),
-            })
-            .collect();
         write_atomic(path, html::render("actswap batch", &sections).as_bytes())?;
     }
     if args.json {
@@ -180,9 +174,7 @@ impl Progress {
     fn finished(&self, job: &Job, result: &Result<Audit>) {
         let n = self.done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
         let verdict = match result {
-            Ok(a) if a.passes() => "pass".to_string(),
-            Ok(a) if a.plan.unserved() > 0 => "unserved sites".to_string(),
-            Ok(_) => "over budget".to_string(),
+            Ok(a) => a.summary().verdict.as_str().to_string(),
             Err(e) => format!("error: {}", super::one_line(&format!("{e:#}"))),
         };
         let line = format!(

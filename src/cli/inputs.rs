@@ -19,8 +19,9 @@ use anyhow::{Context, Result, bail};
 
 use crate::run::inputs::{
     Binding, DEFAULT_MAX_ELEMENTS, Distribution, InputLoader, RandomInputs, parse_dim_size,
+    symbolic_dims,
 };
-use crate::run::{Dim, InputSpec, Sample};
+use crate::run::{InputSpec, Sample};
 
 /// Random input distributions.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -99,12 +100,8 @@ impl InputArgs {
         }
         let mut spec = self.random()?;
         if self.ignore_unused_dims {
-            spec.dims.retain(|name, _| {
-                inputs
-                    .iter()
-                    .flat_map(|i| i.dims.iter().flatten())
-                    .any(|d| matches!(d, Dim::Named(n) if n == name))
-            });
+            let used = symbolic_dims(inputs);
+            spec.dims.retain(|name, _| used.contains(&name.as_str()));
         }
         let samples = loader.random(&spec)?;
         Ok(LoadedSamples {

@@ -144,7 +144,7 @@ impl ModelSummary {
 
 /// The worst of `(figure, tag)` pairs by `worse(candidate, current)`; a NaN figure is the worst
 /// of all, so it is never hidden behind a number.
-fn worst<T>(
+pub(crate) fn worst<T>(
     values: impl Iterator<Item = (f64, T)>,
     worse: fn(f64, f64) -> bool,
 ) -> Option<(f64, T)> {

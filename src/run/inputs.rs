@@ -46,7 +46,7 @@ use std::path::{Path, PathBuf};
 use super::signature::bind;
 use super::{InputSpec, NamedTensor, RunError, Sample, Tensor};
 
-pub use random::{Distribution, RandomInputs};
+pub use random::{Distribution, RandomInputs, symbolic_dims};
 
 /// Default element-count limit per tensor: 64 Mi elements (256 MiB of f32).
 pub const DEFAULT_MAX_ELEMENTS: usize = 64 << 20;

@@ -104,9 +104,9 @@ pub(super) fn generate(
         .collect()
 }
 
-/// Refuses a set dim that no input uses (most likely a typo).
-fn check_dim_names(inputs: &[InputSpec], dims: &BTreeMap<String, usize>) -> Result<(), RunError> {
-    let used: Vec<&str> = inputs
+/// The names of the symbolic dims the inputs use, in input order (repeats kept).
+pub fn symbolic_dims(inputs: &[InputSpec]) -> Vec<&str> {
+    inputs
         .iter()
         .flat_map(|i| i.dims.iter().flatten())
         .filter_map(|d| {
@@ -116,7 +116,12 @@ fn check_dim_names(inputs: &[InputSpec], dims: &BTreeMap<String, usize>) -> Resu
                 None
             }
         })
-        .collect();
+        .collect()
+}
+
+/// Refuses a set dim that no input uses (most likely a typo).
+fn check_dim_names(inputs: &[InputSpec], dims: &BTreeMap<String, usize>) -> Result<(), RunError> {
+    let used = symbolic_dims(inputs);
     match dims.keys().find(|k| !used.contains(&k.as_str())) {
         Some(unused) => Err(RunError::BadArgument {
             text: format!("{unused}=SIZE"),

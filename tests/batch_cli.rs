@@ -3,6 +3,12 @@
 //! and nothing is written for it; every other model is converted exactly as a single `swap`
 //! converts it (byte for byte), and the summary is the same whatever `--jobs` is.
 //! Exit codes: 0 all within budget, 1 some over budget or unserved, 2 some model failed.
+//!
+//! Sources: the reference for each converted model is `swap`'s output, whose rewrites
+//! scripts/check_rewrites.py holds against the onnx checker and onnxruntime in CI (on the torch
+//! fixtures); the external data layout is the ONNX external-data convention (a `location`
+//! relative to the model's folder); the exit codes and refusals are this tool's documented
+//! contract (README).
 
 mod cli_support;
 

@@ -312,7 +312,8 @@ fn a_form_above_the_model_opset_is_unserved() {
 
 /// Every sample model under every built-in target: the rewrite applies (sites in the main graph
 /// and inside If branches patched in one go), and a rescan finds each rewritten site where it
-/// was, in the same graph, with the planned kind. Regression: patching the main graph first
+/// was, in the same graph, with the planned kind (the scanner's identification is itself held to
+/// the ONNX conformance cases in tests/scan.rs). Regression: patching the main graph first
 /// shifted the node indices a branch is found through.
 #[test]
 fn every_sample_converts_under_every_built_in_target() {

@@ -11,7 +11,7 @@ mod support;
 
 use std::time::Instant;
 
-use actswap::measure::{CompareOptions, compare};
+use actswap::measure::{CompareOptions, compare_models};
 use actswap::onnx::Model;
 use measure_support as fx;
 use support::{bare, median};
@@ -46,7 +46,7 @@ fn main() {
         let rewritten = rewrite(&original, output);
         let samples = fx::samples(id, &original);
         // Warm both paths once.
-        let sites = compare(&original, &rewritten, &samples, &opts)
+        let sites = compare_models(&original, &rewritten, &samples, &opts)
             .unwrap()
             .sites
             .len();
@@ -54,7 +54,7 @@ fn main() {
         let (mut tc, mut tb) = (Vec::new(), Vec::new());
         for _ in 0..runs {
             let t = Instant::now();
-            std::hint::black_box(compare(&original, &rewritten, &samples, &opts).unwrap());
+            std::hint::black_box(compare_models(&original, &rewritten, &samples, &opts).unwrap());
             tc.push(t.elapsed().as_secs_f64());
             let t = Instant::now();
             bare(&original, &rewritten, &samples[0]);

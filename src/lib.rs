@@ -1,6 +1,7 @@
 //! actswap: find activation functions in ONNX models, convert them to forms a target runtime
 //! accepts, and measure what the swap costs in drift and latency.
 
+pub mod audit;
 pub mod batch;
 pub mod catalog;
 pub mod cli;

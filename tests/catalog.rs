@@ -378,7 +378,7 @@ fn fused_ops_and_the_opset_that_introduced_them() {
     // ONNX operator schemas (the version history of each op).
     let first = |id: &str| {
         let f = &kind(id).fused[0];
-        (f.domain, f.op_type, f.since)
+        (f.domain, f.op.op_type, f.introduced)
     };
     assert_eq!(first("hard_swish"), ("", "HardSwish", 14));
     assert_eq!(first("gelu"), ("", "Gelu", 20));
@@ -398,7 +398,7 @@ fn fused_ops_and_the_opset_that_introduced_them() {
             .fused
             .iter()
             .filter(|f| f.domain == "com.microsoft")
-            .map(|f| f.op_type)
+            .map(|f| f.op.op_type)
             .collect()
     };
     assert_eq!(vendor("gelu"), ["Gelu", "BiasGelu"]);

@@ -19,13 +19,15 @@
 // Check values keep the digits their sources give.
 #![allow(clippy::excessive_precision)]
 
+mod ladder;
+
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
-use actswap::catalog::emit::{
-    EmitCtx, Emitted, FormId, NEWEST_OPSET, OpNeed, ParamArg, Unavailable, emit, min_opset, needs,
-};
-use actswap::catalog::{Kind, all, get};
+use ladder::Tol;
+
+use actswap::catalog::emit::{EmitCtx, Emitted, NEWEST_OPSET, OpNeed, Unavailable, min_opset};
+use actswap::catalog::{Form, Kind, ParamValue, Params, all, get};
 use actswap::onnx::Model;
 use actswap::onnx::builder::{Dim, model, opset, value};
 use actswap::onnx::proto::{GraphProto, tensor_proto::DataType};
@@ -35,51 +37,6 @@ use tract_onnx::prelude::*;
 
 /// Channels of the per-channel cases, whose input is `[B, C, 4, 4]`.
 const CHANNELS: usize = 3;
-
-/// tract's f32 Sigmoid and Tanh clamp their input (to +-14.5 and +-7.5) and then return
-/// 4.8e-7 and 1 - 6.1e-7 instead of 0 and 1 (tract-linalg 0.23.9, generic/sigmoid.rs and
-/// generic/tanh.rs); the larger of the two floors.
-const TRACT_SATURATION: f64 = 6.1e-7;
-
-/// How close an output at `x` must be to the reference `r` (f64).
-#[derive(Debug, Clone, Copy, PartialEq)]
-enum Tol {
-    /// Equal to `r` rounded to float32: one correctly rounded operation away from the formula.
-    Exact,
-    /// Within 1e-6 * (1 + |r|): a few float32 roundings (2^-24 = 6e-8 each).
-    Close,
-    /// Within 1e-5 * (1 + |r|): a runtime op's approximation error a little above Close.
-    Approx,
-    /// Close plus |x| * [`TRACT_SATURATION`]: a form that multiplies x by a factor saturating
-    /// to 0 (x * sigmoid(b x), 0.5 x (1 + tanh z)), run on a runtime whose sigmoid or tanh
-    /// stops short of saturating. Unbounded as x grows: it says only that the error is that
-    /// floor and nothing else.
-    TailFloor,
-}
-
-impl Tol {
-    fn bound(self, x: f64, r: f64) -> f64 {
-        match self {
-            Tol::Exact => 0.0,
-            Tol::Close => 1e-6 * (1.0 + r.abs()),
-            Tol::Approx => 1e-5 * (1.0 + r.abs()),
-            Tol::TailFloor => 1e-6 * (1.0 + r.abs()) + x.abs() * TRACT_SATURATION,
-        }
-    }
-
-    /// None when `got` passes at `x`, else what is wrong.
-    fn check(self, x: f64, got: f64, r: f64) -> Option<String> {
-        let r32 = r as f32 as f64;
-        if got.is_nan() {
-            return Some(format!("NaN where the reference is {r:e}"));
-        }
-        if r32.is_infinite() || got.is_infinite() || self == Tol::Exact {
-            return (got != r32).then(|| format!("{got:e}, want {r32:e} exactly"));
-        }
-        let err = (got - r).abs();
-        (err > self.bound(x, r)).then(|| format!("{got:e}, want {r:e} (error {err:e})"))
-    }
-}
 
 /// Which loader runs the model.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -93,8 +50,8 @@ enum Runner {
 /// One (kind, form) pair with its test parameters, the rung it needs in tract and why.
 struct Case {
     kind: &'static str,
-    form: FormId,
-    params: Vec<ParamArg>,
+    form: Form,
+    params: Vec<ParamValue>,
     tol: Tol,
     why: &'static str,
     runner: Runner,
@@ -104,16 +61,13 @@ struct Case {
     index: usize,
 }
 
-fn s(v: f64) -> ParamArg {
-    ParamArg::Scalar(v)
+fn s(v: f64) -> ParamValue {
+    ParamValue::Scalar(v)
 }
 
-/// A `[1, C, 1, 1]` parameter.
-fn per_channel(values: [f64; CHANNELS]) -> ParamArg {
-    ParamArg::Tensor {
-        values: values.to_vec(),
-        dims: vec![1, CHANNELS, 1, 1],
-    }
+/// A per-channel parameter (a `[1, C, 1, 1]` tensor in the model, see [`ctx`]).
+fn per_channel(values: [f64; CHANNELS]) -> ParamValue {
+    ParamValue::PerChannel(values.to_vec())
 }
 
 /// The ONNX Selu defaults, the float32 roundings of the paper's constants (ONNX Selu schema).
@@ -121,10 +75,10 @@ const SELU: [f64; 2] = [1.67326319217681884765625, 1.05070102214813232421875];
 
 #[rustfmt::skip]
 fn cases() -> Vec<Case> {
-    use FormId::{Fused, Primitive};
+    use Form::{Fused, Primitive};
     use Runner::{Corrected, Tract};
     use Tol::{Approx, Close, Exact, TailFloor};
-    let case = |kind, form, params: Vec<ParamArg>, tol, runner, why| Case { kind, form, params, tol, why, runner, overflows_above: None, index: 0 };
+    let case = |kind, form, params: Vec<ParamValue>, tol, runner, why| Case { kind, form, params, tol, why, runner, overflows_above: None, index: 0 };
     let overflowing = |c: Case, above| Case { overflows_above: Some(above), ..c };
     let table = vec![
         case("relu",             Fused,     vec![],                 Exact,  Tract, "one exact op"),
@@ -172,6 +126,12 @@ fn cases() -> Vec<Case> {
         case("gelu_tanh",        Primitive, vec![],                 TailFloor, Tract, "0.5 x (1 + tanh z) on tract's tanh floor"),
         case("mish",             Fused,     vec![],                 Close,  Tract, "ln(1 + e) rounds 1 + e, times |x|; tanh's floor near 1"),
         case("mish",             Primitive, vec![],                 Close,  Tract, "ln(1 + e) rounds 1 + e, times |x|; tanh's floor near 1"),
+        case("squared_relu",     Primitive, vec![],                 Exact,  Tract, "one rounding of x * x; +inf above 1.8e19 as the reference"),
+        case("shrink",           Fused,     vec![s(0.5), s(0.5)],   Exact,  Tract, "soft shrinkage: one rounding of x - bias"),
+        case("shrink",           Primitive, vec![s(0.5), s(0.5)],   Exact,  Tract, "soft shrinkage: selects x -+ bias or 0"),
+        case("shrink",           Fused,     vec![s(0.7), s(0.0)],   Exact,  Tract, "hard shrinkage: selects x or 0"),
+        case("shrink",           Primitive, vec![s(0.7), s(0.0)],   Exact,  Tract, "hard shrinkage: selects x or 0"),
+        case("log_sigmoid",      Primitive, vec![],                 Close,  Tract, "ln(1 + e) rounds 1 + e: absolute error ~6e-8"),
     ];
     table.into_iter().enumerate().map(|(index, c)| Case { index, ..c }).collect()
 }
@@ -223,15 +183,39 @@ fn site_model(emitted: &Emitted, elem: DataType, shape: &[usize], version: i64) 
         .to_vec()
 }
 
-fn ctx<'a>(params: &'a [ParamArg], elem: DataType, version: i64) -> EmitCtx<'a> {
-    EmitCtx {
-        input: "x",
-        output: "y",
-        prefix: "site.act",
-        elem_type: elem,
-        opset: version,
-        params,
+/// A stand-in site reading `x` and writing `y`: per-channel parameters are `[1, C, 1, 1]`.
+struct TestSite {
+    params: Params,
+    elem: DataType,
+    version: i64,
+}
+
+fn ctx(params: &[ParamValue], elem: DataType, version: i64) -> TestSite {
+    TestSite {
+        params: Params::new(params.to_vec(), Some(vec![1, CHANNELS, 1, 1])),
+        elem,
+        version,
     }
+}
+
+/// `k`'s `form` written for `site`, as the planner writes it (`Kind::emit`).
+fn emit(k: &Kind, form: Form, site: &TestSite) -> Result<Emitted, Unavailable> {
+    k.emit(
+        form,
+        &EmitCtx {
+            input: "x",
+            output: "y",
+            prefix: "site.act",
+            elem_type: site.elem,
+            opset: site.version,
+            params: &site.params,
+        },
+    )
+}
+
+/// The ops `k`'s `form` needs (`Kind::needs`).
+fn needs(k: &Kind, form: Form, per_channel: bool) -> Vec<OpNeed> {
+    k.needs(form, per_channel)
 }
 
 /// Runs a one-input model on `input` and returns its first output.
@@ -269,7 +253,7 @@ fn layout(case: &Case, xs: &[f32]) -> (Vec<usize>, Vec<f32>, Vec<usize>) {
     let tensor_param = case
         .params
         .iter()
-        .any(|p| matches!(p, ParamArg::Tensor { .. }));
+        .any(|p| matches!(p, ParamValue::PerChannel(_)));
     if !tensor_param {
         return (vec![xs.len()], xs.to_vec(), vec![0; xs.len()]);
     }
@@ -294,8 +278,8 @@ fn stored_params(case: &Case, c: usize) -> Vec<f64> {
         .iter()
         .map(|p| {
             let v = match p {
-                ParamArg::Scalar(v) => *v,
-                ParamArg::Tensor { values, .. } => values[c],
+                ParamValue::Scalar(v) => *v,
+                ParamValue::PerChannel(values) => values[c],
             };
             v as f32 as f64
         })
@@ -304,7 +288,7 @@ fn stored_params(case: &Case, c: usize) -> Vec<f64> {
 
 /// The opsets a case runs at: the least that has the form and one from the range tract knows
 /// best (9 to 18), or the least if that is higher.
-fn opsets(k: &Kind, form: FormId, per_channel: bool) -> Vec<i64> {
+fn opsets(k: &Kind, form: Form, per_channel: bool) -> Vec<i64> {
     let least = min_opset(&needs(k, form, per_channel)).expect("form exists");
     let mut v = vec![least, least.max(17)];
     v.dedup();
@@ -488,7 +472,7 @@ fn every_primitive_form_is_sound_in_float32() {
     // overflow the reference does not have, and no loss beyond a few float32 roundings.
     let mut report = Vec::new();
     let mut failed = Vec::new();
-    for case in cases().into_iter().filter(|c| c.form == FormId::Primitive) {
+    for case in cases().into_iter().filter(|c| c.form == Form::Primitive) {
         let k = kind(case.kind);
         let tol = if case.tol == Tol::Exact {
             Tol::Exact
@@ -532,10 +516,13 @@ fn every_primitive_form_is_sound_in_float32() {
 fn the_case_table_covers_every_kind_and_form() {
     let table = cases();
     for k in all() {
-        for form in FormId::ALL {
-            assert!(
+        for form in Form::ALL {
+            // A kind without an ONNX op has no fused form to test.
+            let exists = form == Form::Primitive || k.standard_op().is_some();
+            assert_eq!(
                 table.iter().any(|c| c.kind == k.id && c.form == form),
-                "no test case for {} {form}",
+                exists,
+                "test cases for {} {form}",
                 k.id
             );
         }
@@ -564,15 +551,27 @@ fn check_values_from_the_sources() {
         ("selu", &SELU, -1.0, -1.1113307378125625),
         ("selu", &SELU, 1.0, 1.0507009873554805),
         ("celu", &[2.0], -1.0, -0.7869386805747332),
+        // So et al. 2021 (squared ReLU); ln(sigmoid(x)) at 0 and -1 (-ln 2, -ln(1 + e)); the
+        // ONNX Shrink schema's formula with PyTorch's soft and hard shrinkage settings.
+        ("squared_relu", &[], 3.0, 9.0),
+        ("squared_relu", &[], -2.0, 0.0),
+        ("log_sigmoid", &[], 0.0, -std::f64::consts::LN_2),
+        ("log_sigmoid", &[], -1.0, -1.3132616875182228),
+        ("shrink", &[0.5, 0.5], 2.0, 1.5),
+        ("shrink", &[0.5, 0.5], -0.3, 0.0),
+        ("shrink", &[0.5, 0.0], -2.0, -2.0),
     ];
     for &(id, params, x, want) in checks {
-        for form in FormId::ALL {
-            let args: Vec<ParamArg> = params.iter().map(|&v| s(v)).collect();
+        for form in Form::ALL {
+            if kind(id).standard_op().is_none() && form == Form::Fused {
+                continue;
+            }
+            let args: Vec<ParamValue> = params.iter().map(|&v| s(v)).collect();
             let version = min_opset(&needs(kind(id), form, false)).unwrap().max(17);
             let emitted = emit(kind(id), form, &ctx(&args, DataType::Float, version)).unwrap();
             let bytes = site_model(&emitted, DataType::Float, &[1], version);
             // Celu and Swish with alpha != 1 need the corrected loaders (TRACT-NOTES).
-            let runner = if form == FormId::Fused && params.iter().any(|&p| p != 1.0) {
+            let runner = if form == Form::Fused && params.iter().any(|&p| p != 1.0) {
                 Runner::Corrected
             } else {
                 Runner::Tract
@@ -593,28 +592,31 @@ fn check_values_from_the_sources() {
 /// catalogue entry): the fused op's version, or for a primitive form the newest of its ops (Erf 9, Where 9, Max / Min with broadcasting 8, Add / Mul with
 /// broadcasting 7).
 #[rustfmt::skip]
-const LEAST_OPSET: &[(&str, i64, i64)] = &[
-    // kind              fused  primitive
-    ("relu",                 6, 8),
-    ("relu6",                6, 8),
-    ("hard_swish",          14, 7),
-    ("clip",                 6, 8),
-    ("leaky_relu",           6, 8),
-    ("prelu",                9, 8),
-    ("thresholded_relu",    10, 9),
-    ("elu",                  6, 8),
-    ("selu",                 6, 8),
-    ("celu",                12, 8),
-    ("sigmoid",              6, 6),
-    ("hard_sigmoid",         6, 7),
-    ("tanh",                 6, 6),
-    ("softplus",             1, 7),
-    ("softsign",             1, 7),
-    ("silu",                24, 7),
-    ("swish",               24, 7),
-    ("gelu",                20, 9),
-    ("gelu_tanh",           20, 7),
-    ("mish",                18, 7),
+const LEAST_OPSET: &[(&str, Option<i64>, i64)] = &[
+    // kind              fused     primitive
+    ("relu",             Some(6),  8),
+    ("relu6",            Some(6),  8),
+    ("hard_swish",       Some(14), 7),
+    ("clip",             Some(6),  8),
+    ("leaky_relu",       Some(6),  8),
+    ("prelu",            Some(9),  8),
+    ("thresholded_relu", Some(10), 9),
+    ("squared_relu",     None,     7),
+    ("shrink",           Some(9),  9),
+    ("elu",              Some(6),  8),
+    ("selu",             Some(6),  8),
+    ("celu",             Some(12), 8),
+    ("sigmoid",          Some(6),  6),
+    ("hard_sigmoid",     Some(6),  7),
+    ("tanh",             Some(6),  6),
+    ("softplus",         Some(1),  7),
+    ("softsign",         Some(1),  7),
+    ("silu",             Some(24), 7),
+    ("swish",            Some(24), 7),
+    ("gelu",             Some(20), 9),
+    ("gelu_tanh",        Some(20), 7),
+    ("mish",             Some(18), 7),
+    ("log_sigmoid",      None,     8),
 ];
 
 #[test]
@@ -622,8 +624,16 @@ fn each_form_needs_the_opset_of_its_ops_and_refuses_a_lower_one() {
     assert_eq!(LEAST_OPSET.len(), all().len());
     for &(id, fused, primitive) in LEAST_OPSET {
         let k = kind(id);
-        let args: Vec<ParamArg> = k.defaults().into_iter().map(s).collect();
-        for (form, least) in [(FormId::Fused, fused), (FormId::Primitive, primitive)] {
+        let args: Vec<ParamValue> = k.defaults().into_iter().map(s).collect();
+        if fused.is_none() {
+            assert!(needs(k, Form::Fused, false).is_empty(), "{id}: no ONNX op");
+            assert_eq!(
+                emit(k, Form::Fused, &ctx(&args, DataType::Float, NEWEST_OPSET)).unwrap_err(),
+                Unavailable::NoFusedOp { kind: k.id }
+            );
+        }
+        let forms = [(Form::Fused, fused), (Form::Primitive, Some(primitive))];
+        for (form, least) in forms.into_iter().filter_map(|(f, l)| Some((f, l?))) {
             assert_eq!(
                 min_opset(&needs(k, form, false)),
                 Some(least),
@@ -647,7 +657,7 @@ fn each_form_needs_the_opset_of_its_ops_and_refuses_a_lower_one() {
         }
     }
     // The op that is missing is named: Gelu is opset 20 (ONNX Gelu schema).
-    let e = emit(kind("gelu"), FormId::Fused, &ctx(&[], DataType::Float, 19)).unwrap_err();
+    let e = emit(kind("gelu"), Form::Fused, &ctx(&[], DataType::Float, 19)).unwrap_err();
     assert_eq!(
         e,
         Unavailable::NeedsOpset {
@@ -665,10 +675,10 @@ fn each_form_needs_the_opset_of_its_ops_and_refuses_a_lower_one() {
 #[test]
 fn needs_agrees_with_what_emit_writes() {
     for k in all() {
-        for form in FormId::ALL {
+        for form in Form::ALL {
             for per_channel in [false, true] {
                 let listed = needs(k, form, per_channel);
-                let params: Vec<ParamArg> = k
+                let params: Vec<ParamValue> = k
                     .params
                     .iter()
                     .map(|p| {
@@ -709,15 +719,18 @@ fn needs_agrees_with_what_emit_writes() {
     }
 }
 
-fn per_channel_param(v: f64) -> ParamArg {
+fn per_channel_param(v: f64) -> ParamValue {
     per_channel([v; CHANNELS])
 }
 
 #[test]
 fn names_come_from_the_prefix_and_the_last_node_writes_the_output() {
     for k in all() {
-        for form in FormId::ALL {
-            let args: Vec<ParamArg> = k.defaults().into_iter().map(s).collect();
+        for form in Form::ALL {
+            if form == Form::Fused && k.standard_op().is_none() {
+                continue;
+            }
+            let args: Vec<ParamValue> = k.defaults().into_iter().map(s).collect();
             let e = emit(k, form, &ctx(&args, DataType::Float, NEWEST_OPSET)).unwrap();
             let what = format!("{} {form}", k.id);
             let initializers: Vec<&str> = e.initializers.iter().map(|t| t.name()).collect();
@@ -770,16 +783,16 @@ fn constants_take_the_element_type_of_the_input() {
         DataType::Bfloat16,
     ] {
         for (id, form, args) in [
-            ("gelu", FormId::Primitive, vec![]),
-            ("gelu_tanh", FormId::Primitive, vec![]),
+            ("gelu", Form::Primitive, vec![]),
+            ("gelu_tanh", Form::Primitive, vec![]),
             (
                 "swish",
-                FormId::Primitive,
+                Form::Primitive,
                 vec![per_channel([0.5, 1.0, 1.702])],
             ),
-            ("clip", FormId::Fused, vec![s(-1.5), s(2.5)]),
-            ("hard_swish", FormId::Primitive, vec![]),
-            ("celu", FormId::Primitive, vec![s(1.5)]),
+            ("clip", Form::Fused, vec![s(-1.5), s(2.5)]),
+            ("hard_swish", Form::Primitive, vec![]),
+            ("celu", Form::Primitive, vec![s(1.5)]),
         ] {
             let e = emit(kind(id), form, &ctx(&args, elem, NEWEST_OPSET)).unwrap();
             assert!(!e.initializers.is_empty(), "{id}");
@@ -804,7 +817,7 @@ fn constants_take_the_element_type_of_the_input() {
     // A constant keeps as much of its value as the type holds: 1/sqrt(2) in double.
     let e = emit(
         kind("gelu"),
-        FormId::Primitive,
+        Form::Primitive,
         &ctx(&[], DataType::Double, 13),
     )
     .unwrap();
@@ -829,15 +842,15 @@ fn float16_and_double_sites_run_in_their_own_type() {
     let xs: Vec<f64> = (-96..=96).map(|i| i as f64 / 16.0).collect();
     let both = [DataType::Float16, DataType::Double];
     for (id, form, params, types) in [
-        ("gelu", FormId::Primitive, vec![], &both[..1]),
-        ("swish", FormId::Primitive, vec![1.702], &both[..1]),
-        ("hard_swish", FormId::Primitive, vec![], &both[..]),
-        ("softplus", FormId::Primitive, vec![], &both[..]),
-        ("mish", FormId::Primitive, vec![], &both[..]),
-        ("elu", FormId::Fused, vec![0.7], &both[..1]),
+        ("gelu", Form::Primitive, vec![], &both[..1]),
+        ("swish", Form::Primitive, vec![1.702], &both[..1]),
+        ("hard_swish", Form::Primitive, vec![], &both[..]),
+        ("softplus", Form::Primitive, vec![], &both[..]),
+        ("mish", Form::Primitive, vec![], &both[..]),
+        ("elu", Form::Fused, vec![0.7], &both[..1]),
     ] {
         let k = kind(id);
-        let args: Vec<ParamArg> = params.iter().map(|&v| s(v)).collect();
+        let args: Vec<ParamValue> = params.iter().map(|&v| s(v)).collect();
         for &elem in types {
             let version = 17;
             let e = emit(k, form, &ctx(&args, elem, version)).unwrap();
@@ -886,7 +899,7 @@ fn element_types_raise_the_opset_where_the_schemas_say() {
     assert_eq!(
         emit(
             kind("celu"),
-            FormId::Fused,
+            Form::Fused,
             &ctx(&celu, DataType::Float16, 21)
         )
         .unwrap_err(),
@@ -896,40 +909,33 @@ fn element_types_raise_the_opset_where_the_schemas_say() {
             have: 21
         }
     );
+    assert!(emit(kind("celu"), Form::Fused, &ctx(&celu, DataType::Double, 28)).is_ok());
     assert!(
         emit(
             kind("celu"),
-            FormId::Fused,
-            &ctx(&celu, DataType::Double, 28)
-        )
-        .is_ok()
-    );
-    assert!(
-        emit(
-            kind("celu"),
-            FormId::Primitive,
+            Form::Primitive,
             &ctx(&celu, DataType::Float16, 12)
         )
         .is_ok()
     );
-    let bf16 = |id: &str, form, params: &[ParamArg], version| {
+    let bf16 = |id: &str, form, params: &[ParamValue], version| {
         emit(kind(id), form, &ctx(params, DataType::Bfloat16, version))
     };
     assert!(matches!(
-        bf16("thresholded_relu", FormId::Primitive, &[s(1.0)], 13),
+        bf16("thresholded_relu", Form::Primitive, &[s(1.0)], 13),
         Err(Unavailable::NeedsOpset {
             op: "Where",
             needs: 16,
             ..
         })
     ));
-    assert!(bf16("thresholded_relu", FormId::Primitive, &[s(1.0)], 16).is_ok());
+    assert!(bf16("thresholded_relu", Form::Primitive, &[s(1.0)], 16).is_ok());
     assert!(matches!(
-        bf16("gelu", FormId::Primitive, &[], 12),
+        bf16("gelu", Form::Primitive, &[], 12),
         Err(Unavailable::NeedsOpset { needs: 13, .. })
     ));
     assert!(matches!(
-        bf16("relu6", FormId::Fused, &[], 12),
+        bf16("relu6", Form::Fused, &[], 12),
         Err(Unavailable::NeedsOpset {
             op: "Clip",
             needs: 13,
@@ -937,14 +943,14 @@ fn element_types_raise_the_opset_where_the_schemas_say() {
         })
     ));
     assert!(matches!(
-        bf16("elu", FormId::Fused, &[s(1.0)], 21),
+        bf16("elu", Form::Fused, &[s(1.0)], 21),
         Err(Unavailable::NeedsOpset {
             op: "Elu",
             needs: 22,
             ..
         })
     ));
-    let e = bf16("gelu", FormId::Primitive, &[], 13).unwrap();
+    let e = bf16("gelu", Form::Primitive, &[], 13).unwrap();
     assert!(e.ops.iter().all(|o: &OpNeed| o.since == 13), "{:?}", e.ops);
 }
 
@@ -954,7 +960,7 @@ fn clip_takes_attributes_before_opset_11_and_inputs_from_it() {
     let params = [s(-1.5), s(2.5)];
     let old = emit(
         kind("clip"),
-        FormId::Fused,
+        Form::Fused,
         &ctx(&params, DataType::Float, 10),
     )
     .unwrap();
@@ -971,7 +977,7 @@ fn clip_takes_attributes_before_opset_11_and_inputs_from_it() {
     );
     let new = emit(
         kind("clip"),
-        FormId::Fused,
+        Form::Fused,
         &ctx(&params, DataType::Float, 11),
     )
     .unwrap();
@@ -994,33 +1000,23 @@ fn per_channel_parameters_go_where_the_op_takes_a_tensor() {
     // ONNX Swish takes alpha as a float attribute; PRelu's slope is an input (ONNX schemas).
     let beta = [per_channel([0.5, 1.0, 1.702])];
     assert_eq!(
-        emit(
-            kind("swish"),
-            FormId::Fused,
-            &ctx(&beta, DataType::Float, 24)
-        )
-        .unwrap_err(),
+        emit(kind("swish"), Form::Fused, &ctx(&beta, DataType::Float, 24)).unwrap_err(),
         Unavailable::PerChannel {
             kind: "swish",
-            form: FormId::Fused
+            form: Form::Fused
         }
     );
-    assert!(needs(kind("swish"), FormId::Fused, true).is_empty());
+    assert!(needs(kind("swish"), Form::Fused, true).is_empty());
     assert_eq!(
-        min_opset(&needs(kind("swish"), FormId::Primitive, true)),
+        min_opset(&needs(kind("swish"), Form::Primitive, true)),
         Some(7)
     );
-    let prelu = emit(
-        kind("prelu"),
-        FormId::Fused,
-        &ctx(&beta, DataType::Float, 16),
-    )
-    .unwrap();
+    let prelu = emit(kind("prelu"), Form::Fused, &ctx(&beta, DataType::Float, 16)).unwrap();
     assert_eq!(prelu.initializers[0].dims, [1, 3, 1, 1]);
     // A scalar parameter is a rank-0 initializer.
     let scalar = emit(
         kind("prelu"),
-        FormId::Fused,
+        Form::Fused,
         &ctx(&[s(0.25)], DataType::Float, 16),
     )
     .unwrap();
@@ -1031,30 +1027,23 @@ fn per_channel_parameters_go_where_the_op_takes_a_tensor() {
 fn bad_sites_are_refused_with_one_line() {
     let k = kind("swish");
     let refusals = [
-        emit(k, FormId::Primitive, &ctx(&[], DataType::Float, 17)).unwrap_err(),
+        emit(k, Form::Primitive, &ctx(&[], DataType::Float, 17)).unwrap_err(),
         emit(
             k,
-            FormId::Primitive,
-            &ctx(
-                &[ParamArg::Tensor {
-                    values: vec![1.0; 2],
-                    dims: vec![1, 3, 1, 1],
-                }],
-                DataType::Float,
-                17,
-            ),
+            Form::Primitive,
+            &ctx(&[ParamValue::PerChannel(vec![1.0; 2])], DataType::Float, 17),
         )
         .unwrap_err(),
-        emit(k, FormId::Primitive, &ctx(&[s(1.0)], DataType::Int32, 17)).unwrap_err(),
+        emit(k, Form::Primitive, &ctx(&[s(1.0)], DataType::Int32, 17)).unwrap_err(),
         emit(
             kind("celu"),
-            FormId::Primitive,
+            Form::Primitive,
             &ctx(&[s(0.0)], DataType::Float, 17),
         )
         .unwrap_err(),
         emit(
             kind("celu"),
-            FormId::Fused,
+            Form::Fused,
             &ctx(&[s(-1.0)], DataType::Float, 17),
         )
         .unwrap_err(),
@@ -1098,11 +1087,11 @@ fn bad_sites_are_refused_with_one_line() {
 
 #[test]
 fn form_names_round_trip() {
-    for form in FormId::ALL {
-        assert_eq!(form.to_string().parse::<FormId>(), Ok(form));
+    for form in Form::ALL {
+        assert_eq!(form.to_string().parse::<Form>(), Ok(form));
     }
-    assert_eq!("fused".parse::<FormId>(), Ok(FormId::Fused));
-    let err = "approximate".parse::<FormId>().unwrap_err();
+    assert_eq!("fused".parse::<Form>(), Ok(Form::Fused));
+    let err = "approximate".parse::<Form>().unwrap_err();
     assert_eq!(
         err.to_string(),
         "unknown form 'approximate' (expected fused or primitive)"
@@ -1112,9 +1101,13 @@ fn form_names_round_trip() {
 #[test]
 fn fused_forms_write_the_catalogue_op() {
     for k in all() {
-        let ops = needs(k, FormId::Fused, false);
+        let ops = needs(k, Form::Fused, false);
+        let Some(op) = k.standard_op() else {
+            assert!(ops.is_empty(), "{}: no ONNX op, no fused form", k.id);
+            continue;
+        };
         assert_eq!(ops.len(), 1, "{}: one op", k.id);
-        assert_eq!(ops[0].op_type, k.fused[0].op_type, "{}", k.id);
-        assert!(ops[0].since >= k.fused[0].since, "{}", k.id);
+        assert_eq!(ops[0].op_type, op.op.op_type, "{}", k.id);
+        assert!(ops[0].since >= op.introduced, "{}", k.id);
     }
 }

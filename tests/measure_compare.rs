@@ -13,8 +13,8 @@
 
 mod measure_support;
 
-use actswap::measure::report::LocalBasis;
-use actswap::measure::{Budgets, CompareOptions, LatencyOptions, Scope, compare};
+use actswap::measure::result::LocalBasis;
+use actswap::measure::{Budgets, CompareOptions, LatencyOptions, Scope, compare_models};
 use actswap::run::prepare;
 use measure_support as fx;
 use ndarray::ArrayD;
@@ -57,7 +57,7 @@ fn a_model_against_itself_drifts_by_exactly_zero() {
             assert!(err <= 1e-5, "{id} '{}': {err:e} from onnxruntime", t.name);
         }
 
-        let r = compare(&model, &model, &samples, &no_latency()).unwrap();
+        let r = compare_models(&model, &model, &samples, &no_latency()).unwrap();
         assert!(r.within_budget && r.offenders.is_empty(), "{id}");
         assert!(r.unmatched.is_empty(), "{id}: {:?}", r.unmatched);
         assert!(!r.sites.is_empty(), "{id}");
@@ -99,12 +99,9 @@ fn silu_to_hard_swish_drifts_within_the_published_bound() {
     let model = fx::load(id);
     let rewritten = fx::silu_to_hard_swish(&model, output);
     let samples = fx::samples(id, &model);
-    let r = compare(&model, &rewritten, &samples, &no_latency()).unwrap();
+    let r = compare_models(&model, &rewritten, &samples, &no_latency()).unwrap();
     let s = r.sites.iter().find(|s| s.output == output).unwrap();
-    assert_eq!(
-        (s.kind_a.as_str(), s.kind_b.as_str()),
-        ("silu", "hard_swish")
-    );
+    assert_eq!((s.kind_a.id, s.kind_b.id), ("silu", "hard_swish"));
     let local = s.local.as_ref().unwrap();
     assert!(local.max_abs > 0.0);
     assert!(local.max_abs <= HARD_SWISH_BOUND, "{:e}", local.max_abs);
@@ -136,7 +133,7 @@ fn silu_to_hard_swish_drifts_within_the_published_bound() {
         },
         ..no_latency()
     };
-    let r = compare(&model, &rewritten, &samples, &tight).unwrap();
+    let r = compare_models(&model, &rewritten, &samples, &tight).unwrap();
     assert!(!r.within_budget);
     assert_eq!(r.offenders.len(), 1, "{:?}", r.offenders);
     assert_eq!(r.offenders[0].scope, Scope::Site);
@@ -151,12 +148,9 @@ fn gelu_to_tanh_gelu_drifts_within_the_published_bound() {
     let model = fx::load(id);
     let rewritten = fx::gelu_to_tanh(&model, output);
     let samples = fx::samples(id, &model);
-    let r = compare(&model, &rewritten, &samples, &no_latency()).unwrap();
+    let r = compare_models(&model, &rewritten, &samples, &no_latency()).unwrap();
     let s = r.sites.iter().find(|s| s.output == output).unwrap();
-    assert_eq!(
-        (s.kind_a.as_str(), s.kind_b.as_str()),
-        ("gelu", "gelu_tanh")
-    );
+    assert_eq!((s.kind_a.id, s.kind_b.id), ("gelu", "gelu_tanh"));
     let local = s.local.as_ref().unwrap();
     assert!(
         local.max_abs > 0.0 && local.max_abs <= TANH_GELU_BOUND,
@@ -185,7 +179,7 @@ fn output_budgets_flag_outputs_and_latency_is_measured() {
         latency: Some(LatencyOptions { runs: 3, warmup: 1 }),
         ..CompareOptions::default()
     };
-    let r = compare(&model, &rewritten, &samples, &opts).unwrap();
+    let r = compare_models(&model, &rewritten, &samples, &opts).unwrap();
     assert!(!r.within_budget);
     assert!(
         r.offenders

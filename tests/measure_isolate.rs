@@ -62,7 +62,7 @@ fn isolated_sites_reproduce_onnxruntime_site_values() {
                     (g - w).abs() <= 1e-5 + 1e-5 * w.abs(),
                     "{id} {} ({}): {g} vs onnxruntime {w}",
                     site.id,
-                    site.kind
+                    site.kind.id
                 );
             }
             checked += 1;

@@ -11,15 +11,15 @@ mod measure_support;
 
 use std::process::{Command, Output};
 
-use actswap::measure::{CAUTION, CompareOptions, DriftReport, compare};
+use actswap::audit::{self, Conversion, InputSource, Origin, Verdict, summarize};
+use actswap::measure::{CAUTION, CompareOptions, DriftReport};
 use actswap::onnx::builder::{Dim, model, node, opset, value};
 use actswap::onnx::proto::{GraphProto, tensor_proto::DataType};
-use actswap::onnx::{Model, ModelIndex, SaveOptions};
+use actswap::onnx::{Model, SaveOptions};
+use actswap::plan::Plan;
 use actswap::plan::request::Request;
-use actswap::plan::{Plan, Policy};
 use actswap::report::html::{CURVE_POINTS, ModelSection, render};
-use actswap::report::summary::{Verdict, summarize};
-use actswap::{rewrite, scan};
+use actswap::run::inputs::{Binding, DEFAULT_MAX_ELEMENTS};
 use measure_support as fx;
 use scraper::{ElementRef, Html, Selector};
 use serde_json::Value;
@@ -258,24 +258,24 @@ fn an_error_before_measurement_writes_no_report() {
     );
 }
 
-/// Plan, rewrite and compare a torch export through the library.
+/// Audits a torch export on its own inputs through the library stage.
 fn library_audit(id: &str, to: &str) -> (Plan, DriftReport) {
-    let model = fx::load(id);
-    let index = ModelIndex::build(&model).unwrap();
-    let requests = [Request::parse(to).unwrap()];
-    let plan = Plan::build(
-        &index,
-        scan::scan(&index).sites,
-        &Policy::Requests(&requests),
-    );
-    let (rewritten, _) = rewrite::apply(&model, &index, &plan).unwrap();
-    let samples = fx::samples(id, &model);
+    let dir = fx::fixture_dir(id);
+    let conversion = Conversion::new(vec![Request::parse(to).unwrap()], None, Vec::new()).unwrap();
+    let inputs = InputSource {
+        origin: Origin::Files(vec![Binding {
+            input: None,
+            path: dir.join("inputs.npz"),
+        }]),
+        max_elements: DEFAULT_MAX_ELEMENTS,
+        ignore_unused_dims: false,
+    };
     let opts = CompareOptions {
         latency: None,
         ..CompareOptions::default()
     };
-    let drift = compare(&model, &rewritten, &samples, &opts).unwrap();
-    (plan, drift)
+    let a = audit::audit(&dir.join("model.onnx"), &conversion, &inputs, &opts).unwrap();
+    (a.plan, a.drift)
 }
 
 #[test]

@@ -6,8 +6,9 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
+use actswap::catalog::ParamValue;
 use actswap::onnx::{Model, ModelIndex};
-use actswap::scan::{self, ParamValue, ScanReport};
+use actswap::scan::{self, ScanReport};
 use serde_json::Value;
 
 fn root() -> PathBuf {
@@ -96,7 +97,7 @@ fn conformance_cases_are_identified() {
             if !expanded {
                 assert_eq!(report.sites.len(), 1, "{name}: {:?}", report.sites);
                 let s = &report.sites[0];
-                assert_eq!(s.form, scan::Form::Fused, "{name}");
+                assert_eq!(s.spelling, scan::Spelling::Fused, "{name}");
                 assert_eq!(s.rewritable, !multi_input, "{name}: {s:?}");
             }
             continue;
@@ -106,13 +107,13 @@ fn conformance_cases_are_identified() {
         // A scalar function cannot tell celu(alpha = 1) from elu(1); none of these cases uses it.
         assert_eq!(report.sites.len(), 1, "{name}: {:?}", report.sites);
         let s = &report.sites[0];
-        assert_eq!(s.kind, kind, "{name}");
+        assert_eq!(s.kind.id, kind, "{name}");
         let want_form = if expanded {
-            scan::Form::Decomposed
+            scan::Spelling::Decomposed
         } else {
-            scan::Form::Fused
+            scan::Spelling::Fused
         };
-        assert_eq!(s.form, want_form, "{name}");
+        assert_eq!(s.spelling, want_form, "{name}");
         assert_eq!(
             s.input,
             case["info"]["inputs"][0]["name"].as_str().unwrap(),
@@ -125,7 +126,7 @@ fn conformance_cases_are_identified() {
         );
         assert!(s.rewritable, "{name}: {:?}", s.notes);
         for (p, want) in params {
-            let got = match &s.params[p] {
+            let got = match s.param(p).unwrap_or_else(|| panic!("{name}: no param {p}")) {
                 ParamValue::Scalar(v) => *v,
                 other => panic!("{name}: {p} is {other:?}"),
             };
@@ -179,29 +180,28 @@ fn torch_exports_give_exactly_the_true_sites() {
                 .iter()
                 .find(|s| s.output == out)
                 .unwrap_or_else(|| panic!("{id}: true site {} ({}) not found", t["id"], t["kind"]));
-            assert_eq!(found.kind, t["kind"].as_str().unwrap(), "{id}: {out}");
+            assert_eq!(found.kind.id, t["kind"].as_str().unwrap(), "{id}: {out}");
             assert_eq!(found.input, t["input"].as_str().unwrap(), "{id}: {out}");
             for (p, want) in t["params"].as_object().unwrap() {
-                if found.kind == "relu6" {
+                if found.kind.id == "relu6" {
                     // relu6 is clip(0, 6) by definition; the manifest spells out the bounds.
                     let bound = if p == "min" { 0.0 } else { 6.0 };
                     assert_eq!(want.as_f64(), Some(bound), "{id}: {out}: {p}");
                     continue;
                 }
-                let kind = actswap::catalog::get(&found.kind).unwrap();
+                let kind = found.kind;
                 if kind.param_index(p).is_none() {
                     // torch's Softplus(beta = 1, threshold = 20) is the standard softplus: beta 1
                     // is the formula, and the threshold switches to x where the two agree to
                     // float precision (PyTorch docs).
                     assert!(
-                        found.kind == "softplus" && (p != "beta" || want == 1.0),
+                        found.kind.id == "softplus" && (p != "beta" || want == 1.0),
                         "{id}: {out}: {p}"
                     );
                     continue;
                 }
                 let got = found
-                    .params
-                    .get(p)
+                    .param(p)
                     .unwrap_or_else(|| panic!("{id}: {out}: no param {p}"));
                 assert!(
                     param_matches(got, want),
@@ -214,7 +214,7 @@ fn torch_exports_give_exactly_the_true_sites() {
             assert!(
                 truth.iter().any(|t| t["output"] == s.output.as_str()),
                 "{id}: extra site {} {} -> {}",
-                s.kind,
+                s.kind.id,
                 s.input,
                 s.output
             );
@@ -227,9 +227,9 @@ fn torch_exports_give_exactly_the_true_sites() {
                         .as_array()
                         .unwrap()
                         .iter()
-                        .any(|k| k == s.kind.as_str()),
+                        .any(|k| k == s.kind.id),
                     "{id}: near miss {out} reported as {}",
-                    s.kind
+                    s.kind.id
                 );
             }
         }

@@ -6,7 +6,7 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-use actswap::catalog::emit::FormId;
+use actswap::catalog::{Form, ParamValue};
 use actswap::onnx::{Model, ModelIndex};
 use actswap::plan::request::Request;
 use actswap::plan::{Plan, Policy};
@@ -27,7 +27,7 @@ fn swap(model: &Model, requests: &[&str]) -> (Model, Plan) {
         .collect();
     let index = ModelIndex::build(model).unwrap();
     let sites = scan::scan(&index).sites;
-    let plan = Plan::build(&index, sites, &Policy::Requests(&requests));
+    let plan = Plan::build(sites, &Policy::Requests(&requests), index.main().opset(""));
     let (out, _) = rewrite::apply(model, &index, &plan).unwrap();
     (out, plan)
 }
@@ -148,8 +148,8 @@ fn untouched_messages_stay_byte_for_byte() {
     let sites = scan::scan(&index).sites;
     for (s, t) in plan.rewrites() {
         let found = sites.iter().find(|n| n.output == s.output).unwrap();
-        assert_eq!(found.kind, t.kind.id, "{}", s.output);
-        assert_eq!(found.form, scan::Form::Decomposed);
+        assert_eq!(found.kind.id, t.kind.id, "{}", s.output);
+        assert_eq!(found.spelling, scan::Spelling::Decomposed);
     }
 }
 
@@ -196,9 +196,10 @@ fn per_channel_parameters_stay_per_channel() {
         .into_iter()
         .find(|s| s.output == "block1.act")
         .unwrap();
-    assert_eq!(site.param_shape, Some(vec![1, 12, 1, 1]));
-    assert!(matches!(site.params["beta"], scan::ParamValue::PerChannel(ref v) if v.len() == 12));
-    assert_eq!(FormId::Primitive.name(), "primitive");
+    let params = site.params.as_ref().unwrap();
+    assert_eq!(params.shape(), Some(&[1, 12, 1, 1][..]));
+    assert!(matches!(site.param("beta"), Some(ParamValue::PerChannel(v)) if v.len() == 12));
+    assert_eq!(Form::Primitive.name(), "primitive");
 }
 
 fn actswap(args: &[&str]) -> (i32, String, String) {
@@ -329,7 +330,11 @@ fn every_sample_converts_under_every_built_in_target() {
             }
             let model = Model::load(&path).unwrap();
             let index = ModelIndex::build(&model).unwrap();
-            let plan = Plan::build(&index, scan::scan(&index).sites, &Policy::Target(&profile));
+            let plan = Plan::build(
+                scan::scan(&index).sites,
+                &Policy::Target(&profile),
+                index.main().opset(""),
+            );
             let (out, _) = rewrite::apply(&model, &index, &plan)
                 .unwrap_or_else(|e| panic!("{} under {target}: {e:#}", path.display()));
             let out = Model::from_bytes(out.encode(), PathBuf::new(), samples.clone()).unwrap();
@@ -345,7 +350,7 @@ fn every_sample_converts_under_every_built_in_target() {
                         panic!("{}: no site writes {}", path.display(), p.site.output)
                     });
                 assert_eq!(
-                    found.kind,
+                    found.kind.id,
                     r.kind.id,
                     "{} {}",
                     path.display(),

@@ -1,9 +1,17 @@
 //! celu: max(0, x) + min(0, alpha * (e^(x/alpha) - 1)).
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{AttrParam, FusedOp, Kind};
 use super::numeric::{bisect, finite};
-use super::{FusedOp, Kind, Param};
-use crate::onnx::builder::attr_f;
+use super::params::Param;
+
+/// Celu accepts only float32 until version 28.
+const CELU: OpVersion = OpVersion {
+    op_type: "Celu",
+    since: 12,
+    since_f16_f64: 28,
+    since_bf16: 28,
+};
 
 pub const KIND: Kind = Kind {
     id: "celu",
@@ -17,14 +25,15 @@ pub const KIND: Kind = Kind {
     reference,
     recover,
     breakpoints: |_| vec![0.0],
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Celu",
-        since: 12,
-        note: "float32 only; function body Div, Elu, Mul (ONNX Celu schema); \
-               tract 0.23.9 computes alpha != 1 wrongly (the expansion omits the multiplication \
-               by alpha), so such sites want the primitive form there",
-    }],
+    fused: &[FusedOp::standard(
+        12,
+        CELU,
+        "float32 only; function body Div, Elu, Mul (ONNX Celu schema); \
+         tract 0.23.9 computes alpha != 1 wrongly (the expansion omits the multiplication \
+         by alpha), so such sites want the primitive form there",
+    )
+    .attrs(&[AttrParam { attr: "alpha", param: 0, default: 1.0 }])
+    .write(fused)],
     formula: "f(x) = max(0, x) + min(0, alpha * (exp(x / alpha) - 1))",
     source: "Barron 2017, 'Continuously Differentiable Exponential Linear Units', \
              arXiv:1704.07483 (from memory); ONNX operator schema Celu",
@@ -39,8 +48,7 @@ pub const KIND: Kind = Kind {
                     opset 6. Recovery solves alpha * (e^(-1/alpha) - 1) = f(-1), monotone in \
                     alpha > 0, by bisection on log(alpha).",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -62,30 +70,25 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     Some(vec![(lo / 2.0 + hi / 2.0).exp()])
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
+fn fused(b: &mut Builder) -> Result<String, Unavailable> {
     b.require(0, |a| a > 0.0, "must be positive")?;
-    let alpha = b.scalar(0)?;
-    let attrs = vec![attr_f("alpha", alpha as f32)];
-    let y = b.node(ops::CELU, "celu", &[ctx.input], attrs)?;
-    b.finish(&y)
+    KIND.fused[0].write_from_table(b)
 }
 
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     b.require(0, |a| a > 0.0, "must be positive")?;
     let (alpha, zero, one) = (
         b.param(0, "alpha"),
         b.constant("zero", 0.0),
         b.constant("one", 1.0),
     );
-    let positive = b.node(ops::RELU, "relu", &[ctx.input], vec![])?;
+    let x = b.input();
+    let positive = b.node(ops::RELU, "relu", &[x], vec![])?;
     // Min before Exp: exp(x / alpha) never sees a positive argument, so it cannot overflow.
-    let negative = b.node(ops::MIN, "min", &[ctx.input, &zero], vec![])?;
+    let negative = b.node(ops::MIN, "min", &[x, &zero], vec![])?;
     let scaled = b.node(ops::DIV, "div", &[&negative, &alpha], vec![])?;
     let e = b.node(ops::EXP, "exp", &[&scaled], vec![])?;
     let em1 = b.node(ops::SUB, "sub", &[&e, &one], vec![])?;
     let negative = b.node(ops::MUL, "mul", &[&em1, &alpha], vec![])?;
-    let y = b.node(ops::ADD, "add", &[&positive, &negative], vec![])?;
-    b.finish(&y)
+    b.node(ops::ADD, "add", &[&positive, &negative], vec![])
 }

@@ -1,8 +1,10 @@
 //! clip: x limited to [min, max].
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{FusedNode, FusedOp, Kind, Reading};
 use super::numeric::finite;
-use super::{FusedOp, Kind, Param};
+use super::params::{Param, Params};
+use crate::onnx::attrs;
 
 /// How far out recovery probes for the bounds; a bound beyond it is taken as absent.
 const REACH: f64 = 1e12;
@@ -29,13 +31,14 @@ pub const KIND: Kind = Kind {
     reference,
     recover,
     breakpoints: |p| vec![p[0], p[1]],
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Clip",
-        since: 6,
-        note: "min/max are attributes at opsets 6-10 and optional scalar inputs from opset 11; \
-               since 13, min > max sets every output to max (ONNX Clip schema)",
-    }],
+    fused: &[FusedOp::standard(
+        6,
+        OpVersion::new("Clip", 6, 13),
+        "min/max are attributes at opsets 6-10 and optional scalar inputs from opset 11; \
+         since 13, min > max sets every output to max (ONNX Clip schema)",
+    )
+    .read(read)
+    .write(fused)],
     formula: "f(x) = min(max(x, min), max); every output is max when min > max",
     source: "ONNX operator schema Clip (onnx/defs/math/defs.cc, old.cc)",
     forms: &[
@@ -49,8 +52,7 @@ pub const KIND: Kind = Kind {
                     (+-3.4028234663852886e38). A clip with neither bound active is the \
                     identity and is not identified.",
     piecewise_linear: true,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -74,17 +76,71 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     (min < max && (min > -NO_BOUND || max < NO_BOUND)).then(|| vec![min, max])
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let (min, max) = (b.scalar(0)?, b.scalar(1)?);
-    let y = b.clip("clip", ctx.input, min, max)?;
-    b.finish(&y)
+/// A Clip node's bounds: `None` where a side is unbounded (absent, or beyond float32's range).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Bounds {
+    Known(Option<f64>, Option<f64>),
+    /// A bound is an input computed at run time.
+    Runtime,
 }
 
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+/// Reads a Clip node's bounds: attributes before opset 11, optional constant inputs from 11.
+pub fn bounds(node: &FusedNode) -> Option<Bounds> {
+    let (lo, hi) = if node.opset < 11 {
+        (
+            attrs::float(node.node, "min"),
+            attrs::float(node.node, "max"),
+        )
+    } else {
+        let bound = |i: usize| -> Result<Option<f64>, ()> {
+            match node.node.input.get(i).map(String::as_str) {
+                None | Some("") => Ok(None),
+                Some(_) => match (node.constant)(i) {
+                    Some(c) if c.values.len() == 1 => Ok(Some(c.values[0])),
+                    _ => Err(()),
+                },
+            }
+        };
+        match (bound(1), bound(2)) {
+            (Ok(lo), Ok(hi)) => (lo, hi),
+            _ => return Some(Bounds::Runtime),
+        }
+    };
+    Some(Bounds::Known(
+        lo.filter(|v| *v > f32::MIN as f64),
+        hi.filter(|v| *v < f32::MAX as f64),
+    ))
+}
+
+/// Any Clip the special cases (relu, relu6) did not claim.
+fn read(node: &FusedNode, r: Reading) -> Option<Reading> {
+    Some(match bounds(node)? {
+        Bounds::Known(lo, hi) => Reading {
+            params: Some(Params::scalars(&[
+                lo.unwrap_or(f64::NEG_INFINITY),
+                hi.unwrap_or(f64::INFINITY),
+            ])),
+            ..r
+        },
+        Bounds::Runtime => {
+            let mut r = r;
+            r.params = None;
+            r.notes.push("a bound is computed at run time".into());
+            r.rewritable = false;
+            r
+        }
+    })
+}
+
+fn fused(b: &mut Builder) -> Result<String, Unavailable> {
+    let (min, max) = (b.scalar(0)?, b.scalar(1)?);
+    let x = b.input();
+    b.clip("clip", x, min, max)
+}
+
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let (min, max) = (b.param(0, "min"), b.param(1, "max"));
-    let lower = b.node(ops::MAX, "max", &[ctx.input, &min], vec![])?;
-    let y = b.node(ops::MIN, "min", &[&lower, &max], vec![])?;
-    b.finish(&y)
+    let x = b.input();
+    let lower = b.node(ops::MAX, "max", &[x, &min], vec![])?;
+    b.node(ops::MIN, "min", &[&lower, &max], vec![])
 }

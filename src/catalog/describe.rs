@@ -4,8 +4,8 @@ use std::fmt::Write;
 
 use serde_json::{Value, json};
 
-use super::Kind;
-use super::emit::{FormId, OpNeed, Unavailable, least, min_opset};
+use super::emit::{Form, OpNeed, Unavailable, min_opset};
+use super::kind::Kind;
 use super::substitute::{ErrorBound, rules};
 
 /// Text width the description wraps to.
@@ -14,7 +14,7 @@ const WIDTH: usize = 96;
 /// One form `kind` emits, with every parameter a scalar or, with `per_channel`, each per-channel
 /// parameter a tensor.
 struct EmittedForm {
-    form: FormId,
+    form: Form,
     per_channel: bool,
     /// The ops at the lowest opset that has the form, or why there is none.
     ops: Result<Vec<OpNeed>, Unavailable>,
@@ -28,13 +28,13 @@ fn emitted_forms(kind: &Kind) -> Vec<EmittedForm> {
     } else {
         &[false]
     };
-    FormId::ALL
+    Form::ALL
         .into_iter()
         .flat_map(|form| {
             variants.iter().map(move |&per_channel| EmittedForm {
                 form,
                 per_channel,
-                ops: least(kind, form, per_channel).map(|e| e.ops),
+                ops: kind.least(form, per_channel).map(|e| e.ops),
             })
         })
         .collect()
@@ -106,7 +106,10 @@ pub fn describe(kind: &Kind) -> String {
             } else {
                 f.domain
             };
-            format!("{} ({domain}, opset {}): {}", f.op_type, f.since, f.note)
+            format!(
+                "{} ({domain}, opset {}): {}",
+                f.op.op_type, f.introduced, f.note
+            )
         })
         .collect();
     section("Fused op", fused);
@@ -195,7 +198,7 @@ pub fn to_json(kind: &Kind) -> Value {
         .fused
         .iter()
         .map(
-            |f| json!({"domain": f.domain, "op_type": f.op_type, "since": f.since, "note": f.note}),
+            |f| json!({"domain": f.domain, "op_type": f.op.op_type, "since": f.introduced, "note": f.note}),
         )
         .collect();
     let emitted: Vec<Value> = emitted_forms(kind)

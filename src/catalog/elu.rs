@@ -1,9 +1,9 @@
 //! elu: x for x >= 0, alpha * (e^x - 1) below.
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{AttrParam, FusedOp, Kind};
 use super::numeric::finite;
-use super::{FusedOp, Kind, Param};
-use crate::onnx::builder::attr_f;
+use super::params::Param;
 
 pub const KIND: Kind = Kind {
     id: "elu",
@@ -17,13 +17,13 @@ pub const KIND: Kind = Kind {
     reference,
     recover,
     breakpoints: |_| vec![0.0],
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Elu",
-        since: 6,
-        note: "versions 6, 22 (ONNX Elu schema); alpha default 1.0; an opset-1 \
-               form with the legacy consumed_inputs attribute existed (from memory)",
-    }],
+    fused: &[FusedOp::standard(
+        6,
+        OpVersion::new("Elu", 6, 22),
+        "versions 6, 22 (ONNX Elu schema); alpha default 1.0; an opset-1 \
+         form with the legacy consumed_inputs attribute existed (from memory)",
+    )
+    .attrs(&[AttrParam { attr: "alpha", param: 0, default: 1.0 }])],
     formula: "f(x) = x for x >= 0, alpha * (exp(x) - 1) for x < 0",
     source: "Clevert, Unterthiner & Hochreiter 2015, 'Fast and Accurate Deep Network Learning \
              by Exponential Linear Units (ELUs)', arXiv:1511.07289; ONNX operator schema Elu",
@@ -37,8 +37,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "The negative branch uses expm1: exp(x) - 1 loses the leading digits near \
                     0. Recovery: alpha = f(-1) / (e^-1 - 1).",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -49,22 +48,13 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     Some(vec![finite(f, -1.0)? / (-1.0f64).exp_m1()])
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let alpha = b.scalar(0)?;
-    let attrs = vec![attr_f("alpha", alpha as f32)];
-    let y = b.node(ops::ELU, "elu", &[ctx.input], attrs)?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let alpha = b.param(0, "alpha");
-    let positive = b.node(ops::RELU, "relu", &[ctx.input], vec![])?;
-    let em1 = exp_m1_of_negative_part(&mut b, ctx.input)?;
+    let x = b.input();
+    let positive = b.node(ops::RELU, "relu", &[x], vec![])?;
+    let em1 = exp_m1_of_negative_part(b, x)?;
     let negative = b.node(ops::MUL, "mul", &[&em1, &alpha], vec![])?;
-    let y = b.node(ops::ADD, "add", &[&positive, &negative], vec![])?;
-    b.finish(&y)
+    b.node(ops::ADD, "add", &[&positive, &negative], vec![])
 }
 
 /// Exp(Min(x, 0)) - 1: 0 for x >= 0, and Exp never sees a positive argument, so it cannot

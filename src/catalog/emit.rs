@@ -1,54 +1,49 @@
-//! Emitting the graph forms of a kind for one site: `fused` (the one standard op) and
-//! `primitive` (a decomposition into basic ops).
+//! Writing a form for one site: the [`Builder`] the kinds' form writers use, what they produce
+//! ([`Emitted`]) and why they may refuse ([`Unavailable`]).
 //!
-//! [`emit`] hands the site ([`EmitCtx`]) to the kind's emitter ([`Kind::fused_form`],
-//! [`Kind::primitive_form`]), a plain function in the kind's file that builds with a [`Builder`].
 //! The builder checks the site (parameter count and shapes, element type), names everything from
 //! the site's prefix (nodes `{prefix}.{role}`, intermediate tensors `{prefix}.t.{role}`,
 //! initializers `{prefix}.c.{role}`), refuses any op the graph's opset lacks, and records each
-//! op with the opset it needs. [`needs`] tells what a form would emit without a site.
+//! op with the opset it needs.
 //!
-//! Op versions ([`ops`]) come from the ONNX operator schemas as the `onnx` package 1.23.2 carries
-//! them (`onnx.defs.get_schema(op, version)`: since_version and type constraints). Each op is
-//! used from the first version that has the form written here: Add, Sub, Mul, Div, Less and
-//! Greater broadcast a scalar constant from 7, Max and Min from 8; ops whose first version had
-//! the legacy `consumed_inputs` attribute are used from 6.
+//! Op versions ([`ops`], and each kind's fused ops) come from the ONNX operator schemas as the
+//! `onnx` package 1.23.2 carries them (`onnx.defs.get_schema(op, version)`: since_version and
+//! type constraints). Each op is used from the first version that has the form written here:
+//! Add, Sub, Mul, Div, Less and Greater broadcast a scalar constant from 7, Max and Min from 8;
+//! ops whose first version had the legacy `consumed_inputs` attribute are used from 6.
 
 use std::fmt;
 use std::str::FromStr;
 
-use super::Kind;
+use super::params::{Param, ParamValue, Params};
 use crate::onnx::builder::{attr_f, node, tensor_float};
 use crate::onnx::proto::{AttributeProto, NodeProto, TensorProto, tensor_proto::DataType};
 
-/// Writes one form for one site.
-pub type Emitter = fn(&EmitCtx<'_>) -> Result<Emitted, Unavailable>;
-
-/// The newest default-domain opset of the ONNX release [`ops`] was checked against.
+/// The newest default-domain opset of the ONNX release the op versions were checked against.
 pub const NEWEST_OPSET: i64 = 28;
 
 /// A graph form of a kind.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
-pub enum FormId {
+pub enum Form {
     /// The one standard op that computes the kind.
     Fused,
     /// A decomposition into basic ops.
     Primitive,
 }
 
-impl FormId {
-    pub const ALL: [FormId; 2] = [FormId::Fused, FormId::Primitive];
+impl Form {
+    pub const ALL: [Form; 2] = [Form::Fused, Form::Primitive];
 
     /// The name used on the command line and in JSON.
     pub fn name(self) -> &'static str {
         match self {
-            FormId::Fused => "fused",
-            FormId::Primitive => "primitive",
+            Form::Fused => "fused",
+            Form::Primitive => "primitive",
         }
     }
 }
 
-impl fmt::Display for FormId {
+impl fmt::Display for Form {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         f.write_str(self.name())
     }
@@ -59,39 +54,18 @@ impl fmt::Display for FormId {
 #[error("unknown form '{0}' (expected fused or primitive)")]
 pub struct UnknownForm(pub String);
 
-impl FromStr for FormId {
+impl FromStr for Form {
     type Err = UnknownForm;
 
     fn from_str(s: &str) -> Result<Self, Self::Err> {
-        FormId::ALL
+        Form::ALL
             .into_iter()
             .find(|f| f.name() == s)
             .ok_or_else(|| UnknownForm(s.to_string()))
     }
 }
 
-/// One parameter value of a site.
-#[derive(Debug, Clone, PartialEq)]
-pub enum ParamArg {
-    Scalar(f64),
-    /// One value per channel with the dims it has in the model, e.g. `[1, C, 1, 1]`.
-    Tensor {
-        values: Vec<f64>,
-        dims: Vec<usize>,
-    },
-}
-
-impl ParamArg {
-    /// The values, one for a scalar.
-    pub fn values(&self) -> &[f64] {
-        match self {
-            ParamArg::Scalar(v) => std::slice::from_ref(v),
-            ParamArg::Tensor { values, .. } => values,
-        }
-    }
-}
-
-/// The site a form is emitted for.
+/// The site a form is written for.
 #[derive(Debug, Clone, Copy)]
 pub struct EmitCtx<'a> {
     /// Tensor the activation reads.
@@ -104,8 +78,8 @@ pub struct EmitCtx<'a> {
     pub elem_type: DataType,
     /// The graph's default-domain opset; no op or op version above it is emitted.
     pub opset: i64,
-    /// One value per entry of the kind's `params`, in order.
-    pub params: &'a [ParamArg],
+    /// One value per parameter of the kind, in order.
+    pub params: &'a Params,
 }
 
 /// An op a form emits and the opset it needs for the site's element type.
@@ -116,12 +90,64 @@ pub struct OpNeed {
 }
 
 /// A form written for one site: nodes in topological order (the last writes the site's output),
-/// their initializers, and every op type used with the opset it needs.
+/// their initializers, and every op type used with the opset it needs. Every new name starts
+/// with `prefix`.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Emitted {
+    pub prefix: String,
     pub nodes: Vec<NodeProto>,
     pub initializers: Vec<TensorProto>,
     pub ops: Vec<OpNeed>,
+}
+
+impl Emitted {
+    /// The op types of the nodes, in order.
+    pub fn op_types(&self) -> Vec<String> {
+        self.nodes.iter().map(|n| n.op_type().to_string()).collect()
+    }
+
+    /// Every name the form introduces (nodes, intermediate tensors, initializers); the site's
+    /// output, which the last node writes, is not new.
+    pub fn new_names(&self, output: &str) -> Vec<String> {
+        let mut v: Vec<String> = self.nodes.iter().map(|n| n.name().to_string()).collect();
+        v.extend(
+            self.nodes
+                .iter()
+                .flat_map(|n| n.output.iter())
+                .filter(|o| o.as_str() != output)
+                .cloned(),
+        );
+        v.extend(self.initializers.iter().map(|t| t.name().to_string()));
+        v
+    }
+
+    /// The same form with every name it introduces under `prefix` instead (for a name already
+    /// taken); the tensors it reads from the graph and the site's output keep their names.
+    pub fn renamed(&self, prefix: &str, output: &str) -> Emitted {
+        let introduced: std::collections::HashSet<String> =
+            self.new_names(output).into_iter().collect();
+        let swap = |name: &mut String| {
+            if introduced.contains(name.as_str())
+                && let Some(rest) = name.strip_prefix(self.prefix.as_str())
+            {
+                *name = format!("{prefix}{rest}");
+            }
+        };
+        let mut out = self.clone();
+        out.prefix = prefix.to_string();
+        for n in &mut out.nodes {
+            let mut name = n.name().to_string();
+            swap(&mut name);
+            n.name = Some(name);
+            n.input.iter_mut().chain(n.output.iter_mut()).for_each(swap);
+        }
+        for t in &mut out.initializers {
+            let mut name = t.name().to_string();
+            swap(&mut name);
+            t.name = Some(name);
+        }
+        out
+    }
 }
 
 /// The least opset that has every op of `needs`; `None` for an empty list.
@@ -132,6 +158,11 @@ pub fn min_opset(needs: &[OpNeed]) -> Option<i64> {
 /// Why a form cannot be emitted for a site.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum Unavailable {
+    #[error("{op} takes no {} inputs at any opset", elem_type.as_str_name())]
+    NoVersion {
+        op: &'static str,
+        elem_type: DataType,
+    },
     #[error("{op} needs opset {needs} for this element type; the graph has opset {have}")]
     NeedsOpset {
         op: &'static str,
@@ -141,7 +172,7 @@ pub enum Unavailable {
     #[error("{kind} has no fused op")]
     NoFusedOp { kind: &'static str },
     #[error("{kind}: the {form} form takes its parameters as scalars, not one value per channel")]
-    PerChannel { kind: &'static str, form: FormId },
+    PerChannel { kind: &'static str, form: Form },
     #[error(
         "{kind}: element type {} is not FLOAT, FLOAT16, DOUBLE or BFLOAT16",
         elem_type.as_str_name()
@@ -172,66 +203,10 @@ pub enum Unavailable {
     },
 }
 
-/// Emits `kind`'s `form` for the site `ctx`.
-pub fn emit(kind: &Kind, form: FormId, ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let emitter = match form {
-        FormId::Fused => kind
-            .fused_form
-            .ok_or(Unavailable::NoFusedOp { kind: kind.id })?,
-        FormId::Primitive => kind.primitive_form,
-    };
-    emitter(ctx)
-}
-
-/// The ops `kind`'s `form` emits, each with the least opset it needs, for float32 and
-/// parameters given as scalars or, with `per_channel`, every per-channel parameter of the kind
-/// as a `[1, C, 1, 1]` tensor. This is the form as written at the lowest opset that has it; an
-/// op may need a later version at a higher opset (Clip's constant inputs from 11), and float16,
-/// double or bfloat16 inputs may need later versions (Celu, and bfloat16 throughout), which
-/// [`emit`] reports. Empty when the form cannot be written at any opset.
-pub fn needs(kind: &Kind, form: FormId, per_channel: bool) -> Vec<OpNeed> {
-    least(kind, form, per_channel)
-        .map(|e| e.ops)
-        .unwrap_or_default()
-}
-
-/// The form written for a stand-in site at the lowest opset that has it, or why it cannot be
-/// written at [`NEWEST_OPSET`].
-pub(crate) fn least(kind: &Kind, form: FormId, per_channel: bool) -> Result<Emitted, Unavailable> {
-    let params: Vec<ParamArg> = kind
-        .params
-        .iter()
-        .map(|p| {
-            if per_channel && p.per_channel {
-                ParamArg::Tensor {
-                    values: vec![p.default; 2],
-                    dims: vec![1, 2, 1, 1],
-                }
-            } else {
-                ParamArg::Scalar(p.default)
-            }
-        })
-        .collect();
-    let at = |opset| {
-        let ctx = EmitCtx {
-            input: "x",
-            output: "y",
-            prefix: "site",
-            elem_type: DataType::Float,
-            opset,
-            params: &params,
-        };
-        emit(kind, form, &ctx)
-    };
-    (1..NEWEST_OPSET)
-        .find_map(|opset| at(opset).ok())
-        .map_or_else(|| at(NEWEST_OPSET), Ok)
-}
-
-/// An ONNX op as the emitters write it: the first opset with the form used here, per input
+/// An ONNX op as the forms write it: the first opset with the form used here, per input
 /// element type.
 #[derive(Debug, Clone, Copy)]
-pub struct Op {
+pub struct OpVersion {
     pub op_type: &'static str,
     /// For float32 inputs.
     pub since: i64,
@@ -241,9 +216,13 @@ pub struct Op {
     pub since_bf16: i64,
 }
 
-impl Op {
-    const fn new(op_type: &'static str, since: i64, since_bf16: i64) -> Op {
-        Op {
+impl OpVersion {
+    /// The "since" of an element type no version of the op takes.
+    pub const NEVER: i64 = i64::MAX;
+
+    /// An op whose float16 and double versions arrived with its float32 one.
+    pub const fn new(op_type: &'static str, since: i64, since_bf16: i64) -> OpVersion {
+        OpVersion {
             op_type,
             since,
             since_f16_f64: since,
@@ -261,107 +240,114 @@ impl Op {
     }
 }
 
-/// The ops the emitters write: op type, first opset for float32 / float16 / double, first opset
-/// for bfloat16 (ONNX operator schemas, onnx 1.23.2).
+/// The basic ops the primitive forms are written with: op type, first opset for float32 /
+/// float16 / double, first opset for bfloat16 (ONNX operator schemas, onnx 1.23.2). A kind's
+/// own fused op is declared in the kind's file.
 #[rustfmt::skip]
 pub mod ops {
-    use super::Op;
+    use super::OpVersion;
 
-    pub const ABS:              Op = Op::new("Abs",              6, 13);
-    pub const ADD:              Op = Op::new("Add",              7, 13);
-    /// Celu accepts only float32 until version 28.
-    pub const CELU:             Op = Op { op_type: "Celu", since: 12, since_f16_f64: 28, since_bf16: 28 };
+    pub const ABS:          OpVersion = OpVersion::new("Abs",      6, 13);
+    pub const ADD:          OpVersion = OpVersion::new("Add",      7, 13);
     /// Clip with `min` / `max` attributes (versions 6 to 10; no bfloat16 in that form).
-    pub const CLIP_ATTRS:       Op = Op::new("Clip",             6, 13);
+    pub const CLIP_ATTRS:   OpVersion = OpVersion::new("Clip",     6, 13);
     /// Clip with `min` / `max` as optional scalar inputs (from version 11).
-    pub const CLIP_INPUTS:      Op = Op::new("Clip",            11, 13);
-    pub const DIV:              Op = Op::new("Div",              7, 13);
-    pub const ELU:              Op = Op::new("Elu",              6, 22);
-    pub const ERF:              Op = Op::new("Erf",              9, 13);
-    pub const EXP:              Op = Op::new("Exp",              6, 13);
-    pub const GELU:             Op = Op::new("Gelu",            20, 20);
-    pub const GREATER:          Op = Op::new("Greater",          7, 13);
-    pub const HARD_SIGMOID:     Op = Op::new("HardSigmoid",      6, 22);
-    pub const HARD_SWISH:       Op = Op::new("HardSwish",       14, 22);
-    pub const LEAKY_RELU:       Op = Op::new("LeakyRelu",        6, 16);
-    pub const LOG:              Op = Op::new("Log",              6, 13);
-    pub const MAX:              Op = Op::new("Max",              8, 13);
-    pub const MIN:              Op = Op::new("Min",              8, 13);
-    pub const MISH:             Op = Op::new("Mish",            18, 22);
-    pub const MUL:              Op = Op::new("Mul",              7, 13);
-    pub const NEG:              Op = Op::new("Neg",              6, 13);
-    /// Unidirectional broadcast of the slope exists from version 7; 9 is the version the
-    /// catalogue lists (and the one the type list of today's PRelu starts from).
-    pub const PRELU:            Op = Op::new("PRelu",            9, 16);
-    pub const RELU:             Op = Op::new("Relu",             6, 13);
-    pub const SELU:             Op = Op::new("Selu",             6, 22);
-    pub const SIGMOID:          Op = Op::new("Sigmoid",          6, 13);
-    pub const SOFTPLUS:         Op = Op::new("Softplus",         1, 22);
-    pub const SOFTSIGN:         Op = Op::new("Softsign",         1, 22);
-    pub const SUB:              Op = Op::new("Sub",              7, 13);
-    pub const SWISH:            Op = Op::new("Swish",           24, 24);
-    pub const TANH:             Op = Op::new("Tanh",             6, 13);
-    pub const THRESHOLDED_RELU: Op = Op::new("ThresholdedRelu", 10, 22);
-    pub const WHERE:            Op = Op::new("Where",            9, 16);
+    pub const CLIP_INPUTS:  OpVersion = OpVersion::new("Clip",    11, 13);
+    pub const DIV:          OpVersion = OpVersion::new("Div",      7, 13);
+    pub const ERF:          OpVersion = OpVersion::new("Erf",      9, 13);
+    pub const EXP:          OpVersion = OpVersion::new("Exp",      6, 13);
+    pub const GREATER:      OpVersion = OpVersion::new("Greater",  7, 13);
+    pub const LESS:         OpVersion = OpVersion::new("Less",     7, 13);
+    pub const LOG:          OpVersion = OpVersion::new("Log",      6, 13);
+    pub const MAX:          OpVersion = OpVersion::new("Max",      8, 13);
+    pub const MIN:          OpVersion = OpVersion::new("Min",      8, 13);
+    pub const MUL:          OpVersion = OpVersion::new("Mul",      7, 13);
+    pub const NEG:          OpVersion = OpVersion::new("Neg",      6, 13);
+    pub const RELU:         OpVersion = OpVersion::new("Relu",     6, 13);
+    pub const SIGMOID:      OpVersion = OpVersion::new("Sigmoid",  6, 13);
+    pub const SOFTPLUS:     OpVersion = OpVersion::new("Softplus", 1, 22);
+    pub const SUB:          OpVersion = OpVersion::new("Sub",      7, 13);
+    pub const TANH:         OpVersion = OpVersion::new("Tanh",     6, 13);
+    pub const WHERE:        OpVersion = OpVersion::new("Where",    9, 16);
 }
 
 /// Builds one form for one site; see the module doc for the names it gives.
 #[derive(Debug)]
 pub struct Builder<'c> {
     ctx: &'c EmitCtx<'c>,
-    kind: &'static Kind,
-    form: FormId,
+    kind: &'static str,
+    params: &'static [Param],
+    form: Form,
     out: Emitted,
 }
 
 impl<'c> Builder<'c> {
-    /// Starts `kind`'s `form` for `ctx`, refusing a site whose element type is not a float type
-    /// or whose parameters do not fit the kind.
+    /// Starts `form` of the kind `kind` (whose parameters are `params`) for `ctx`, refusing a
+    /// site whose element type is not a float type or whose parameters do not fit the kind.
     pub fn new(
         ctx: &'c EmitCtx<'c>,
-        kind: &'static Kind,
-        form: FormId,
+        kind: &'static str,
+        params: &'static [Param],
+        form: Form,
     ) -> Result<Builder<'c>, Unavailable> {
         use DataType::*;
         if !matches!(ctx.elem_type, Float | Float16 | Double | Bfloat16) {
             return Err(Unavailable::ElemType {
-                kind: kind.id,
+                kind,
                 elem_type: ctx.elem_type,
             });
         }
-        if ctx.params.len() != kind.params.len() {
+        if ctx.params.len() != params.len() {
             return Err(Unavailable::ParamCount {
-                kind: kind.id,
-                expected: kind.params.len(),
+                kind,
+                expected: params.len(),
                 found: ctx.params.len(),
             });
         }
-        for (arg, p) in ctx.params.iter().zip(kind.params) {
-            if let ParamArg::Tensor { values, dims } = arg
-                && (values.len() != dims.iter().product::<usize>() || values.is_empty())
-            {
-                return Err(Unavailable::ParamShape {
-                    kind: kind.id,
-                    param: p.name,
-                    values: values.len(),
-                    dims: dims.clone(),
-                });
+        for (value, p) in ctx.params.values().iter().zip(params) {
+            if let ParamValue::PerChannel(values) = value {
+                let dims = ctx
+                    .params
+                    .shape()
+                    .map_or_else(|| vec![values.len()], <[_]>::to_vec);
+                if values.len() != dims.iter().product::<usize>() || values.is_empty() {
+                    return Err(Unavailable::ParamShape {
+                        kind,
+                        param: p.name,
+                        values: values.len(),
+                        dims,
+                    });
+                }
             }
         }
         Ok(Builder {
             ctx,
             kind,
+            params,
             form,
-            out: Emitted::default(),
+            out: Emitted {
+                prefix: ctx.prefix.to_string(),
+                ..Emitted::default()
+            },
         })
+    }
+
+    /// The tensor the activation reads.
+    pub fn input(&self) -> &'c str {
+        self.ctx.input
+    }
+
+    /// The graph's default-domain opset.
+    pub fn opset(&self) -> i64 {
+        self.ctx.opset
     }
 
     /// Parameter `index` as a scalar; a per-channel value is refused (the op takes an attribute).
     pub fn scalar(&self, index: usize) -> Result<f64, Unavailable> {
-        match &self.ctx.params[index] {
-            ParamArg::Scalar(v) => Ok(*v),
-            ParamArg::Tensor { .. } => Err(Unavailable::PerChannel {
-                kind: self.kind.id,
+        match &self.ctx.params.values()[index] {
+            ParamValue::Scalar(v) => Ok(*v),
+            ParamValue::PerChannel(_) => Err(Unavailable::PerChannel {
+                kind: self.kind,
                 form: self.form,
             }),
         }
@@ -375,10 +361,14 @@ impl<'c> Builder<'c> {
         ok: fn(f64) -> bool,
         why: &'static str,
     ) -> Result<(), Unavailable> {
-        match self.ctx.params[index].values().iter().find(|&&v| !ok(v)) {
+        let values = match &self.ctx.params.values()[index] {
+            ParamValue::Scalar(v) => std::slice::from_ref(v),
+            ParamValue::PerChannel(v) => v.as_slice(),
+        };
+        match values.iter().find(|&&v| !ok(v)) {
             Some(&value) => Err(Unavailable::BadParam {
-                kind: self.kind.id,
-                param: self.kind.params[index].name,
+                kind: self.kind,
+                param: self.params[index].name,
                 value,
                 why,
             }),
@@ -394,10 +384,13 @@ impl<'c> Builder<'c> {
     /// Parameter `index` as an initializer `{prefix}.c.{role}`: shape `[]` for a scalar, the
     /// site's dims for a per-channel value; returns its name.
     pub fn param(&mut self, index: usize, role: &str) -> String {
-        match &self.ctx.params[index] {
-            ParamArg::Scalar(v) => self.initializer(role, &[], &[*v]),
-            ParamArg::Tensor { values, dims } => {
-                let dims: Vec<i64> = dims.iter().map(|&d| d as i64).collect();
+        match &self.ctx.params.values()[index] {
+            ParamValue::Scalar(v) => self.initializer(role, &[], &[*v]),
+            ParamValue::PerChannel(values) => {
+                let dims: Vec<i64> = match self.ctx.params.shape() {
+                    Some(d) => d.iter().map(|&d| d as i64).collect(),
+                    None => vec![values.len() as i64],
+                };
                 self.initializer(role, &dims, values)
             }
         }
@@ -419,12 +412,18 @@ impl<'c> Builder<'c> {
     /// tensor's name; refuses an op the site's opset lacks for its element type.
     pub fn node(
         &mut self,
-        op: Op,
+        op: OpVersion,
         role: &str,
         inputs: &[&str],
         attrs: Vec<AttributeProto>,
     ) -> Result<String, Unavailable> {
         let needs = op.since_for(self.ctx.elem_type);
+        if needs == OpVersion::NEVER {
+            return Err(Unavailable::NoVersion {
+                op: op.op_type,
+                elem_type: self.ctx.elem_type,
+            });
+        }
         if needs > self.ctx.opset {
             return Err(Unavailable::NeedsOpset {
                 op: op.op_type,
@@ -470,7 +469,7 @@ impl<'c> Builder<'c> {
     }
 
     /// Ends the form: the node that wrote `last` writes the site's output instead.
-    pub fn finish(mut self, last: &str) -> Result<Emitted, Unavailable> {
+    pub fn finish(mut self, last: &str) -> Emitted {
         let output = self.ctx.output;
         for n in &mut self.out.nodes {
             for name in n.output.iter_mut().chain(n.input.iter_mut()) {
@@ -483,6 +482,6 @@ impl<'c> Builder<'c> {
             self.out.nodes.last().is_some_and(|n| n.output == [output]),
             "the last node writes the site's output"
         );
-        Ok(self.out)
+        self.out
     }
 }

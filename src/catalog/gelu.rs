@@ -2,8 +2,12 @@
 
 use std::f64::consts::FRAC_1_SQRT_2;
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
-use super::{FusedOp, Kind, nothing_to_recover, smooth};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{Fixed, FusedOp, Kind, bias_input};
+use super::{nothing_to_recover, smooth};
+
+/// ONNX Gelu (opset 20), both forms.
+pub const GELU: OpVersion = OpVersion::new("Gelu", 20, 20);
 
 pub const KIND: Kind = Kind {
     id: "gelu",
@@ -13,24 +17,26 @@ pub const KIND: Kind = Kind {
     recover: nothing_to_recover,
     breakpoints: smooth,
     fused: &[
-        FusedOp {
-            domain: "",
-            op_type: "Gelu",
-            since: 20,
-            note: "approximate = \"none\" (the default) (ONNX Gelu schema)",
-        },
-        FusedOp {
-            domain: "com.microsoft",
-            op_type: "Gelu",
-            since: 1,
-            note: "exact erf GELU (from memory)",
-        },
-        FusedOp {
-            domain: "com.microsoft",
-            op_type: "BiasGelu",
-            since: 1,
-            note: "exact erf GELU of A + B, B a bias input (from memory)",
-        },
+        FusedOp::standard(
+            20,
+            GELU,
+            "approximate = \"none\" (the default) (ONNX Gelu schema)",
+        )
+        .fixed(&[Fixed::Str { attr: "approximate", value: "none", default: "none" }]),
+        FusedOp::vendor(
+            "com.microsoft",
+            1,
+            OpVersion::new("Gelu", 1, 1),
+            "exact erf GELU (from memory)",
+        )
+        .read(bias_input),
+        FusedOp::vendor(
+            "com.microsoft",
+            1,
+            OpVersion::new("BiasGelu", 1, 1),
+            "exact erf GELU of A + B, B a bias input (from memory)",
+        )
+        .read(bias_input),
     ],
     formula: "f(x) = x * Phi(x) = 0.5 * x * (1 + erf(x / sqrt(2)))",
     source: "Hendrycks & Gimpel 2016, 'Gaussian Error Linear Units (GELUs)', arXiv:1606.08415; \
@@ -51,27 +57,19 @@ pub const KIND: Kind = Kind {
                     Minimum -0.16997120748 at x = -0.75179152604. The float32 sqrt(2) \
                     (1.4142135) shifts outputs by under 1e-8.",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let y = b.node(ops::GELU, "gelu", &[ctx.input], vec![])?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let (half, rsqrt2, one) = (
         b.constant("half", 0.5),
         b.constant("rsqrt2", FRAC_1_SQRT_2),
         b.constant("one", 1.0),
     );
-    let half_x = b.node(ops::MUL, "mul_half", &[ctx.input, &half], vec![])?;
-    let scaled = b.node(ops::MUL, "mul_rsqrt2", &[ctx.input, &rsqrt2], vec![])?;
+    let x = b.input();
+    let half_x = b.node(ops::MUL, "mul_half", &[x, &half], vec![])?;
+    let scaled = b.node(ops::MUL, "mul_rsqrt2", &[x, &rsqrt2], vec![])?;
     let erf = b.node(ops::ERF, "erf", &[&scaled], vec![])?;
     let cdf2 = b.node(ops::ADD, "add_one", &[&erf, &one], vec![])?;
-    let y = b.node(ops::MUL, "mul", &[&half_x, &cdf2], vec![])?;
-    b.finish(&y)
+    b.node(ops::MUL, "mul", &[&half_x, &cdf2], vec![])
 }

@@ -2,10 +2,11 @@
 
 use std::f64::consts::{FRAC_1_SQRT_2, FRAC_2_SQRT_PI};
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::gelu::GELU;
+use super::kind::{Fixed, FusedOp, Kind, bias_input};
 use super::numeric::sigmoid;
-use super::{FusedOp, Kind, nothing_to_recover, smooth};
-use crate::onnx::builder::attr_s;
+use super::{nothing_to_recover, smooth};
 
 /// sqrt(2 / pi).
 const SQRT_2_OVER_PI: f64 = FRAC_2_SQRT_PI * FRAC_1_SQRT_2;
@@ -18,19 +19,16 @@ pub const KIND: Kind = Kind {
     recover: nothing_to_recover,
     breakpoints: smooth,
     fused: &[
-        FusedOp {
-            domain: "",
-            op_type: "Gelu",
-            since: 20,
-            note: "approximate = \"tanh\" (ONNX Gelu schema)",
-        },
-        FusedOp {
-            domain: "com.microsoft",
-            op_type: "FastGelu",
-            since: 1,
-            note: "the tanh approximation, of x + bias when the optional bias input is given \
-                   (from memory)",
-        },
+        FusedOp::standard(20, GELU, "approximate = \"tanh\" (ONNX Gelu schema)")
+            .fixed(&[Fixed::Str { attr: "approximate", value: "tanh", default: "none" }]),
+        FusedOp::vendor(
+            "com.microsoft",
+            1,
+            OpVersion::new("FastGelu", 1, 1),
+            "the tanh approximation, of x + bias when the optional bias input is given \
+             (from memory)",
+        )
+        .read(bias_input),
     ],
     formula: "f(x) = 0.5 * x * (1 + tanh(sqrt(2/pi) * (x + 0.044715 * x^3)))",
     source: "Hendrycks & Gimpel 2016, 'Gaussian Error Linear Units (GELUs)', arXiv:1606.08415; \
@@ -48,8 +46,7 @@ pub const KIND: Kind = Kind {
                     cancellation of 1 + tanh z for negative x. Differs from exact GELU by at \
                     most 4.7323552e-4, at x = +-2.69894.",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, _: &[f64]) -> f64 {
@@ -57,16 +54,8 @@ fn reference(x: f64, _: &[f64]) -> f64 {
     x * sigmoid(2.0 * z)
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let attrs = vec![attr_s("approximate", "tanh")];
-    let y = b.node(ops::GELU, "gelu", &[ctx.input], attrs)?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
-    let x = ctx.input;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
+    let x = b.input();
     let (cubic, scale, half, one) = (
         b.constant("cubic", 0.044715),
         b.constant("sqrt_2_over_pi", SQRT_2_OVER_PI),
@@ -82,6 +71,5 @@ fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
     let t = b.node(ops::TANH, "tanh", &[&z], vec![])?;
     let factor = b.node(ops::ADD, "add_one", &[&t, &one], vec![])?;
     let half_x = b.node(ops::MUL, "mul_half", &[x, &half], vec![])?;
-    let y = b.node(ops::MUL, "mul", &[&half_x, &factor], vec![])?;
-    b.finish(&y)
+    b.node(ops::MUL, "mul", &[&half_x, &factor], vec![])
 }

@@ -1,9 +1,9 @@
 //! hard_sigmoid: max(0, min(1, alpha * x + beta)).
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{AttrParam, FusedOp, Kind};
 use super::numeric::{bisect, finite};
-use super::{FusedOp, Kind, Param};
-use crate::onnx::builder::attr_f;
+use super::params::Param;
 
 /// Recovery looks for the linear zone within +-REACH.
 const REACH: f64 = 1e6;
@@ -28,13 +28,15 @@ pub const KIND: Kind = Kind {
     reference,
     recover,
     breakpoints,
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "HardSigmoid",
-        since: 1,
-        note: "versions 1, 6, 22; alpha default 0.2, beta 0.5 (ONNX \
-               HardSigmoid schema)",
-    }],
+    fused: &[FusedOp::standard(
+        1,
+        OpVersion::new("HardSigmoid", 6, 22),
+        "versions 1, 6, 22; alpha default 0.2, beta 0.5 (ONNX HardSigmoid schema)",
+    )
+    .attrs(&[
+        AttrParam { attr: "alpha", param: 0, default: 0.2 },
+        AttrParam { attr: "beta", param: 1, default: 0.5 },
+    ])],
     formula: "f(x) = max(0, min(1, alpha * x + beta))",
     source: "ONNX operator schema HardSigmoid (onnx/defs/math/defs.cc); PyTorch docs \
              (Hardsigmoid: alpha = 1/6)",
@@ -52,8 +54,7 @@ pub const KIND: Kind = Kind {
                     by bisection and reads slope and offset from two points inside the linear \
                     zone.",
     piecewise_linear: true,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -88,19 +89,10 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     Some(vec![alpha, beta])
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let (alpha, beta) = (b.scalar(0)?, b.scalar(1)?);
-    let attrs = vec![attr_f("alpha", alpha as f32), attr_f("beta", beta as f32)];
-    let y = b.node(ops::HARD_SIGMOID, "hard_sigmoid", &[ctx.input], attrs)?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let (alpha, beta) = (b.param(0, "alpha"), b.param(1, "beta"));
-    let y = clipped_line(&mut b, ctx.input, &alpha, &beta)?;
-    b.finish(&y)
+    let x = b.input();
+    clipped_line(b, x, &alpha, &beta)
 }
 
 /// Clip(Add(Mul(x, alpha), beta), 0, 1).

@@ -1,8 +1,9 @@
 //! hard_swish: x * relu6(x + 3) / 6.
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
 use super::hard_sigmoid::clipped_line;
-use super::{FusedOp, Kind, nothing_to_recover};
+use super::kind::{FusedOp, Kind};
+use super::nothing_to_recover;
 
 pub const KIND: Kind = Kind {
     id: "hard_swish",
@@ -11,13 +12,12 @@ pub const KIND: Kind = Kind {
     reference,
     recover: nothing_to_recover,
     breakpoints: |_| vec![-3.0, 3.0],
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "HardSwish",
-        since: 14,
-        note: "versions 14, 22; function body HardSigmoid(alpha = 0.16666667163372, beta = 0.5) \
-               then Mul (ONNX HardSwish schema)",
-    }],
+    fused: &[FusedOp::standard(
+        14,
+        OpVersion::new("HardSwish", 14, 22),
+        "versions 14, 22; function body HardSigmoid(alpha = 0.16666667163372, beta = 0.5) \
+         then Mul (ONNX HardSwish schema)",
+    )],
     formula: "f(x) = x * min(max(0, x + 3), 6) / 6 = x * max(0, min(1, x / 6 + 1/2))",
     source: "Howard et al. 2019, 'Searching for MobileNetV3', arXiv:1905.02244 \
              (x * ReLU6(x + 3) / 6); ONNX operator schema HardSwish",
@@ -35,8 +35,7 @@ pub const KIND: Kind = Kind {
                     0.16666667163372; that shifts the output by at most 5e-8 on (-3, 3) \
                     and nothing outside.",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, _: &[f64]) -> f64 {
@@ -44,16 +43,9 @@ fn reference(x: f64, _: &[f64]) -> f64 {
     x * ((x + 3.0).clamp(0.0, 6.0) / 6.0)
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let y = b.node(ops::HARD_SWISH, "hard_swish", &[ctx.input], vec![])?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let (alpha, beta) = (b.constant("alpha", 1.0 / 6.0), b.constant("beta", 0.5));
-    let gate = clipped_line(&mut b, ctx.input, &alpha, &beta)?;
-    let y = b.node(ops::MUL, "mul", &[ctx.input, &gate], vec![])?;
-    b.finish(&y)
+    let x = b.input();
+    let gate = clipped_line(b, x, &alpha, &beta)?;
+    b.node(ops::MUL, "mul", &[x, &gate], vec![])
 }

@@ -1,9 +1,9 @@
 //! leaky_relu: x for x >= 0, alpha * x below.
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{AttrParam, FusedOp, Kind};
 use super::numeric::finite;
-use super::{FusedOp, Kind, Param};
-use crate::onnx::builder::attr_f;
+use super::params::Param;
 
 pub const KIND: Kind = Kind {
     id: "leaky_relu",
@@ -17,12 +17,12 @@ pub const KIND: Kind = Kind {
     reference,
     recover: recover_slope,
     breakpoints: |_| vec![0.0],
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "LeakyRelu",
-        since: 6,
-        note: "versions 6, 16 (ONNX LeakyRelu schema); alpha default 0.01",
-    }],
+    fused: &[FusedOp::standard(
+        6,
+        OpVersion::new("LeakyRelu", 6, 16),
+        "versions 6, 16 (ONNX LeakyRelu schema); alpha default 0.01",
+    )
+    .attrs(&[AttrParam { attr: "alpha", param: 0, default: 0.01 }])],
     formula: "f(x) = x for x >= 0, alpha * x for x < 0",
     source: "ONNX operator schema LeakyRelu (onnx/defs/math/defs.cc); Maas, Hannun & Ng 2013, \
              'Rectifier Nonlinearities Improve Neural Network Acoustic Models' (from memory)",
@@ -37,8 +37,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Exact up to the rounding of alpha * x. Recovery: alpha = -f(-1). A slope of \
                     exactly 1 is the identity and is not identified.",
     piecewise_linear: true,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -51,19 +50,10 @@ pub fn recover_slope(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     (alpha != 1.0).then(|| vec![alpha])
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let alpha = b.scalar(0)?;
-    let attrs = vec![attr_f("alpha", alpha as f32)];
-    let y = b.node(ops::LEAKY_RELU, "leaky_relu", &[ctx.input], attrs)?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let alpha = b.param(0, "alpha");
-    let y = relu_plus_sloped_negative(&mut b, ctx.input, &alpha)?;
-    b.finish(&y)
+    let x = b.input();
+    relu_plus_sloped_negative(b, x, &alpha)
 }
 
 /// Relu(x) + Min(x, 0) * slope: each term is 0 where the other applies, so the sum is exact.

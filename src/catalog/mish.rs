@@ -1,9 +1,10 @@
 //! mish: x * tanh(softplus(x)).
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{FusedOp, Kind};
 use super::numeric::softplus;
 use super::softplus::stable as stable_softplus;
-use super::{FusedOp, Kind, nothing_to_recover, smooth};
+use super::{nothing_to_recover, smooth};
 
 pub const KIND: Kind = Kind {
     id: "mish",
@@ -12,13 +13,11 @@ pub const KIND: Kind = Kind {
     reference: |x, _| x * softplus(x).tanh(),
     recover: nothing_to_recover,
     breakpoints: smooth,
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Mish",
-        since: 18,
-        note: "versions 18, 22; function body Softplus, Tanh, Mul (ONNX \
-               Mish schema)",
-    }],
+    fused: &[FusedOp::standard(
+        18,
+        OpVersion::new("Mish", 18, 22),
+        "versions 18, 22; function body Softplus, Tanh, Mul (ONNX Mish schema)",
+    )],
     formula: "f(x) = x * tanh(softplus(x)) = x * tanh(ln(1 + exp(x)))",
     source: "Misra 2019, 'Mish: A Self Regularized Non-Monotonic Activation Function', \
              arXiv:1908.08681; ONNX operator schema Mish",
@@ -34,20 +33,12 @@ pub const KIND: Kind = Kind {
                     float32 above 88.72, where tanh(inf) = 1 still gives x. Minimum \
                     -0.308843413017 at x = -1.192431217807.",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let y = b.node(ops::MISH, "mish", &[ctx.input], vec![])?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
-    let sp = stable_softplus(&mut b, ctx.input)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
+    let x = b.input();
+    let sp = stable_softplus(b, x)?;
     let t = b.node(ops::TANH, "tanh", &[&sp], vec![])?;
-    let y = b.node(ops::MUL, "mul", &[ctx.input, &t], vec![])?;
-    b.finish(&y)
+    b.node(ops::MUL, "mul", &[x, &t], vec![])
 }

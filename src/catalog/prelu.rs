@@ -1,7 +1,13 @@
 //! prelu: leaky_relu whose slope is an input, usually one value per channel.
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
-use super::{FusedOp, Kind, Param, leaky_relu};
+use super::emit::{Builder, OpVersion, Unavailable};
+use super::kind::{FusedNode, FusedOp, Kind, Reading};
+use super::leaky_relu;
+use super::params::{Param, ParamValue, Params};
+
+/// Unidirectional broadcast of the slope exists from version 7; 9 is the version the catalogue
+/// lists (and the one the type list of today's PRelu starts from).
+const PRELU: OpVersion = OpVersion::new("PRelu", 9, 16);
 
 pub const KIND: Kind = Kind {
     id: "prelu",
@@ -17,13 +23,14 @@ pub const KIND: Kind = Kind {
     reference: leaky_relu::KIND.reference,
     recover: leaky_relu::recover_slope,
     breakpoints: |_| vec![0.0],
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "PRelu",
-        since: 9,
-        note: "versions 9, 16 with unidirectional broadcast of the slope input \
-               (ONNX PRelu schema); earlier versions existed (from memory)",
-    }],
+    fused: &[FusedOp::standard(
+        9,
+        PRELU,
+        "versions 9, 16 with unidirectional broadcast of the slope input \
+         (ONNX PRelu schema); earlier versions existed (from memory)",
+    )
+    .read(slope_input)
+    .write(fused)],
     formula: "f(x) = x for x >= 0, slope * x for x < 0",
     source: "ONNX operator schema PRelu (onnx/defs/math/defs.cc); He et al. 2015, 'Delving Deep \
              into Rectifiers', arXiv:1502.01852 (from memory)",
@@ -38,20 +45,41 @@ pub const KIND: Kind = Kind {
                     and the scanner tells the two apart from the graph (a slope tensor). \
                     Identification of a per-channel site runs per channel.",
     piecewise_linear: true,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let slope = b.param(0, "slope");
-    let y = b.node(ops::PRELU, "prelu", &[ctx.input, &slope], vec![])?;
-    b.finish(&y)
+/// The slope is input 1: a scalar, or one value per channel with its dims.
+fn slope_input(node: &FusedNode, r: Reading) -> Option<Reading> {
+    Some(match (node.constant)(1) {
+        Some(c) if c.values.len() == 1 => Reading {
+            params: Some(Params::scalars(&c.values)),
+            ..r
+        },
+        Some(c) => Reading {
+            params: Some(Params::new(
+                vec![ParamValue::PerChannel(c.values)],
+                Some(c.dims),
+            )),
+            ..r
+        },
+        None => {
+            let mut r = r;
+            r.params = None;
+            r.notes.push("the slope is computed at run time".into());
+            r.rewritable = false;
+            r
+        }
+    })
 }
 
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn fused(b: &mut Builder) -> Result<String, Unavailable> {
     let slope = b.param(0, "slope");
-    let y = leaky_relu::relu_plus_sloped_negative(&mut b, ctx.input, &slope)?;
-    b.finish(&y)
+    let x = b.input();
+    b.node(PRELU, "prelu", &[x, &slope], vec![])
+}
+
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
+    let slope = b.param(0, "slope");
+    let x = b.input();
+    leaky_relu::relu_plus_sloped_negative(b, x, &slope)
 }

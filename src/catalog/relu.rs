@@ -1,8 +1,9 @@
 //! relu: max(0, x).
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::clip::{self, Bounds};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{FusedNode, FusedOp, Kind, Reading};
 use super::numeric::same_f32;
-use super::{FusedOp, Kind};
 
 pub const KIND: Kind = Kind {
     id: "relu",
@@ -11,13 +12,20 @@ pub const KIND: Kind = Kind {
     reference,
     recover,
     breakpoints: |_| vec![0.0],
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Relu",
-        since: 6,
-        note: "versions 6, 13, 14; an opset-1 form with the legacy consumed_inputs attribute \
-               existed (from memory)",
-    }],
+    fused: &[
+        FusedOp::standard(
+            6,
+            ops::RELU,
+            "versions 6, 13, 14; an opset-1 form with the legacy consumed_inputs attribute \
+             existed (from memory)",
+        ),
+        FusedOp::standard(
+            6,
+            OpVersion::new("Clip", 6, 13),
+            "with min = 0 and no max (ONNX Clip schema)",
+        )
+        .read(clip_from_zero),
+    ],
     formula: "f(x) = max(0, x)",
     source: "ONNX operator schema Relu (onnx/defs/math/defs.cc); Nair & Hinton 2010, \
              'Rectified Linear Units Improve Restricted Boltzmann Machines' (from memory)",
@@ -31,8 +39,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Exact in every precision. Identified only when f(-1) and f(-40) are exactly \
                     0, so a LeakyRelu with a tiny alpha is reported as leaky_relu, not relu.",
     piecewise_linear: true,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, _: &[f64]) -> f64 {
@@ -43,15 +50,16 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     (same_f32(f(-1.0), 0.0) && same_f32(f(-40.0), 0.0)).then(Vec::new)
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let y = b.node(ops::RELU, "relu", &[ctx.input], vec![])?;
-    b.finish(&y)
+/// Clip(x, 0) with no upper bound is relu.
+fn clip_from_zero(node: &FusedNode, r: Reading) -> Option<Reading> {
+    match clip::bounds(node)? {
+        Bounds::Known(Some(0.0), None) => Some(r),
+        _ => None,
+    }
 }
 
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let zero = b.constant("zero", 0.0);
-    let y = b.node(ops::MAX, "max", &[ctx.input, &zero], vec![])?;
-    b.finish(&y)
+    let x = b.input();
+    b.node(ops::MAX, "max", &[x, &zero], vec![])
 }

@@ -1,10 +1,10 @@
 //! selu: gamma * elu(x; alpha).
 
 use super::elu::exp_m1_of_negative_part;
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{AttrParam, FusedOp, Kind};
 use super::numeric::finite;
-use super::{FusedOp, Kind, Param};
-use crate::onnx::builder::attr_f;
+use super::params::Param;
 
 #[allow(clippy::excessive_precision)] // the ONNX defaults, digits as the spec writes them
 pub const KIND: Kind = Kind {
@@ -29,13 +29,16 @@ pub const KIND: Kind = Kind {
     reference,
     recover,
     breakpoints: |_| vec![0.0],
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Selu",
-        since: 6,
-        note: "versions 6, 22 (ONNX Selu schema); an opset-1 form with the legacy \
-               consumed_inputs attribute existed (from memory)",
-    }],
+    fused: &[FusedOp::standard(
+        6,
+        OpVersion::new("Selu", 6, 22),
+        "versions 6, 22 (ONNX Selu schema); an opset-1 form with the legacy \
+         consumed_inputs attribute existed (from memory)",
+    )
+    .attrs(&[
+        AttrParam { attr: "alpha", param: 0, default: 1.67326319217681884765625 },
+        AttrParam { attr: "gamma", param: 1, default: 1.05070102214813232421875 },
+    ])],
     formula: "f(x) = gamma * x for x > 0, gamma * alpha * (exp(x) - 1) for x <= 0",
     source: "Klambauer, Unterthiner, Mayr & Hochreiter 2017, 'Self-Normalizing Neural \
              Networks', arXiv:1706.02515 (constants as given in the PyTorch docs); ONNX operator \
@@ -54,8 +57,7 @@ pub const KIND: Kind = Kind {
                     gamma = f(1), alpha = f(-1) / (gamma * (e^-1 - 1)). With gamma = 1 the \
                     function is elu and is reported as elu.",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -69,26 +71,17 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     (gamma != 0.0 && alpha.is_finite()).then(|| vec![alpha, gamma])
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let (alpha, gamma) = (b.scalar(0)?, b.scalar(1)?);
-    let attrs = vec![attr_f("alpha", alpha as f32), attr_f("gamma", gamma as f32)];
-    let y = b.node(ops::SELU, "selu", &[ctx.input], attrs)?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let (alpha, gamma) = (b.scalar(0)?, b.scalar(1)?);
     // One constant gamma * alpha: one rounding fewer on the negative branch.
     let (gamma_c, scale) = (
         b.constant("gamma", gamma),
         b.constant("gamma_alpha", gamma * alpha),
     );
-    let relu = b.node(ops::RELU, "relu", &[ctx.input], vec![])?;
+    let x = b.input();
+    let relu = b.node(ops::RELU, "relu", &[x], vec![])?;
     let positive = b.node(ops::MUL, "mul_gamma", &[&relu, &gamma_c], vec![])?;
-    let em1 = exp_m1_of_negative_part(&mut b, ctx.input)?;
+    let em1 = exp_m1_of_negative_part(b, x)?;
     let negative = b.node(ops::MUL, "mul_gamma_alpha", &[&em1, &scale], vec![])?;
-    let y = b.node(ops::ADD, "add", &[&positive, &negative], vec![])?;
-    b.finish(&y)
+    b.node(ops::ADD, "add", &[&positive, &negative], vec![])
 }

@@ -1,7 +1,8 @@
 //! sigmoid: 1 / (1 + e^-x).
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
-use super::{FusedOp, Kind, nothing_to_recover, numeric, smooth};
+use super::emit::{Builder, Unavailable, ops};
+use super::kind::{FusedOp, Kind};
+use super::{nothing_to_recover, numeric, smooth};
 
 pub const KIND: Kind = Kind {
     id: "sigmoid",
@@ -10,12 +11,11 @@ pub const KIND: Kind = Kind {
     reference: |x, _| numeric::sigmoid(x),
     recover: nothing_to_recover,
     breakpoints: smooth,
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Sigmoid",
-        since: 1,
-        note: "versions 1, 6, 13 (ONNX Sigmoid schema)",
-    }],
+    fused: &[FusedOp::standard(
+        1,
+        ops::SIGMOID,
+        "versions 1, 6, 13 (ONNX Sigmoid schema)",
+    )],
     formula: "f(x) = 1 / (1 + exp(-x))",
     source: "ONNX operator schema Sigmoid (onnx/defs/math/defs.cc)",
     forms: &[
@@ -29,20 +29,11 @@ pub const KIND: Kind = Kind {
                     below. exp(x) / (1 + exp(x)) alone is NaN above x = 88.72 in float32 \
                     (88.72 = ln of the largest float32).",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    sigmoid_op(ctx, FormId::Fused)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    sigmoid_op(ctx, FormId::Primitive)
-}
-
-fn sigmoid_op(ctx: &EmitCtx, form: FormId) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, form)?;
-    let y = b.node(ops::SIGMOID, "sigmoid", &[ctx.input], vec![])?;
-    b.finish(&y)
+/// Sigmoid is itself a basic op.
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
+    let x = b.input();
+    b.node(ops::SIGMOID, "sigmoid", &[x], vec![])
 }

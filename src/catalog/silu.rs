@@ -1,8 +1,10 @@
 //! silu: x * sigmoid(x), swish with beta = 1.
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, Unavailable, ops};
+use super::kind::{Fixed, FusedOp, Kind, bias_input};
 use super::numeric::{same_f32, sigmoid};
-use super::{FusedOp, Kind, smooth, swish};
+use super::swish::{self, QUICK_GELU, SWISH};
+use super::smooth;
 
 pub const KIND: Kind = Kind {
     id: "silu",
@@ -12,18 +14,20 @@ pub const KIND: Kind = Kind {
     recover,
     breakpoints: smooth,
     fused: &[
-        FusedOp {
-            domain: "",
-            op_type: "Swish",
-            since: 24,
-            note: "function op with alpha = 1.0, its default (ONNX Swish schema)",
-        },
-        FusedOp {
-            domain: "com.microsoft",
-            op_type: "QuickGelu",
-            since: 1,
-            note: "x * sigmoid(alpha * x) with alpha = 1 (its default is 1.702) (from memory)",
-        },
+        FusedOp::standard(
+            24,
+            SWISH,
+            "function op with alpha = 1.0, its default (ONNX Swish schema)",
+        )
+        .fixed(&[Fixed::Float { attr: "alpha", value: 1.0, default: 1.0 }]),
+        FusedOp::vendor(
+            "com.microsoft",
+            1,
+            QUICK_GELU,
+            "x * sigmoid(alpha * x) with alpha = 1 (its default is 1.702) (from memory)",
+        )
+        .fixed(&[Fixed::Float { attr: "alpha", value: 1.0, default: 1.702 }])
+        .read(bias_input),
     ],
     formula: "f(x) = x * sigmoid(x) = x / (1 + exp(-x))",
     source: "Elfwing, Uchibe & Doya 2017, 'Sigmoid-Weighted Linear Units for Neural Network \
@@ -41,8 +45,7 @@ pub const KIND: Kind = Kind {
                     Identified when swish's recovered beta rounds to 1.0 in float32; any other \
                     beta is reported as swish with that beta.",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
@@ -50,15 +53,8 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     same_f32(beta[0], 1.0).then(Vec::new)
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let y = b.node(ops::SWISH, "swish", &[ctx.input], vec![])?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
-    let s = b.node(ops::SIGMOID, "sigmoid", &[ctx.input], vec![])?;
-    let y = b.node(ops::MUL, "mul", &[ctx.input, &s], vec![])?;
-    b.finish(&y)
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
+    let x = b.input();
+    let s = b.node(ops::SIGMOID, "sigmoid", &[x], vec![])?;
+    b.node(ops::MUL, "mul", &[x, &s], vec![])
 }

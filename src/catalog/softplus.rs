@@ -1,7 +1,8 @@
 //! softplus: ln(1 + e^x).
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
-use super::{FusedOp, Kind, nothing_to_recover, numeric, smooth};
+use super::emit::{Builder, Unavailable, ops};
+use super::kind::{FusedOp, Kind};
+use super::{nothing_to_recover, numeric, smooth};
 
 pub const KIND: Kind = Kind {
     id: "softplus",
@@ -10,13 +11,12 @@ pub const KIND: Kind = Kind {
     reference: |x, _| numeric::softplus(x),
     recover: nothing_to_recover,
     breakpoints: smooth,
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Softplus",
-        since: 1,
-        note: "versions 1, 22; function body Exp, Add 1, Log, which is the naive form \
-               (ONNX Softplus schema)",
-    }],
+    fused: &[FusedOp::standard(
+        1,
+        ops::SOFTPLUS,
+        "versions 1, 22; function body Exp, Add 1, Log, which is the naive form \
+         (ONNX Softplus schema)",
+    )],
     formula: "f(x) = ln(exp(x) + 1)",
     source: "ONNX operator schema Softplus (onnx/defs/math/defs.cc); Dugas et al. 2001, \
              'Incorporating Second-Order Functional Knowledge for Better Option Pricing' \
@@ -35,20 +35,12 @@ pub const KIND: Kind = Kind {
                     1 + exp(x) rounds to 1; the thresholded export returns x above 20, off by \
                     at most 2.1e-9.",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let y = b.node(ops::SOFTPLUS, "softplus", &[ctx.input], vec![])?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
-    let y = stable(&mut b, ctx.input)?;
-    b.finish(&y)
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
+    let x = b.input();
+    stable(b, x)
 }
 
 /// Relu(x) + Log(1 + Exp(-|x|)): Exp sees only arguments <= 0, so nothing overflows.

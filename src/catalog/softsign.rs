@@ -1,7 +1,8 @@
 //! softsign: x / (1 + |x|).
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
-use super::{FusedOp, Kind, nothing_to_recover, smooth};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{FusedOp, Kind};
+use super::{nothing_to_recover, smooth};
 
 pub const KIND: Kind = Kind {
     id: "softsign",
@@ -10,12 +11,11 @@ pub const KIND: Kind = Kind {
     reference: |x, _| x / (1.0 + x.abs()),
     recover: nothing_to_recover,
     breakpoints: smooth,
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Softsign",
-        since: 1,
-        note: "versions 1, 22 (from memory)",
-    }],
+    fused: &[FusedOp::standard(
+        1,
+        OpVersion::new("Softsign", 1, 22),
+        "versions 1, 22 (from memory)",
+    )],
     formula: "f(x) = x / (1 + |x|)",
     source: "ONNX operator schema Softsign (onnx/defs/math/defs.cc); Glorot & Bengio 2010, \
              'Understanding the difficulty of training deep feedforward neural networks' \
@@ -29,21 +29,13 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Rational, no overflow; tends to +-1 only like 1/|x|, so slowly that no \
                     probe range is a tail for it.",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let y = b.node(ops::SOFTSIGN, "softsign", &[ctx.input], vec![])?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let one = b.constant("one", 1.0);
-    let abs = b.node(ops::ABS, "abs", &[ctx.input], vec![])?;
+    let x = b.input();
+    let abs = b.node(ops::ABS, "abs", &[x], vec![])?;
     let denominator = b.node(ops::ADD, "add", &[&abs, &one], vec![])?;
-    let y = b.node(ops::DIV, "div", &[ctx.input, &denominator], vec![])?;
-    b.finish(&y)
+    b.node(ops::DIV, "div", &[x, &denominator], vec![])
 }

@@ -12,8 +12,10 @@
 
 use std::sync::OnceLock;
 
+use super::get;
+use super::kind::Kind;
 use super::numeric::same_f32;
-use super::{Kind, get};
+use super::params::Params;
 
 /// How a rule sets the target kind's parameters.
 #[derive(Debug, Clone, Copy)]
@@ -402,6 +404,43 @@ pub fn max_abs_error(from: (&Kind, &[f64]), to: (&Kind, &[f64]), lo: f64, hi: f6
         }
     }
     best
+}
+
+/// Worst-case `|from - to|` over `[lo, hi]` for parameters that may be per channel: the worst
+/// channel's bound (a NaN bound is the worst) and that channel. Channels with the same
+/// parameters are computed once; the two sides must have the same channel count where both
+/// have several.
+pub fn max_abs_error_per_channel(
+    from: (&Kind, &Params),
+    to: (&Kind, &Params),
+    lo: f64,
+    hi: f64,
+) -> Result<(ErrorBound, usize), String> {
+    let (na, nb) = (from.1.channels(), to.1.channels());
+    if na > 1 && nb > 1 && na != nb {
+        return Err(format!(
+            "{na} channels in the original, {nb} in the new site"
+        ));
+    }
+    let mut seen: Vec<(Vec<f64>, Vec<f64>)> = Vec::new();
+    let mut worst: Option<(ErrorBound, usize)> = None;
+    for c in 0..na.max(nb) {
+        let pa = from.1.channel(c.min(na - 1));
+        let pb = to.1.channel(c.min(nb - 1));
+        if seen.iter().any(|(x, y)| *x == pa && *y == pb) {
+            continue;
+        }
+        let e = if from.0.id == to.0.id && pa == pb {
+            ErrorBound { value: 0.0, at: lo }
+        } else {
+            max_abs_error((from.0, &pa), (to.0, &pb), lo, hi)
+        };
+        seen.push((pa, pb));
+        if worst.is_none_or(|(w, _)| e.value > w.value || e.value.is_nan()) {
+            worst = Some((e, c));
+        }
+    }
+    worst.ok_or_else(|| "no channels".to_string())
 }
 
 /// Sample points for [`max_abs_error`] on a finite `[lo, hi]`, sorted. The grid of the whole

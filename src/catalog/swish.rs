@@ -1,9 +1,15 @@
 //! swish: x * sigmoid(beta * x).
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{AttrParam, FusedOp, Kind, bias_input};
 use super::numeric::{finite, logit, sigmoid};
-use super::{FusedOp, Kind, Param, smooth};
-use crate::onnx::builder::attr_f;
+use super::params::Param;
+use super::smooth;
+
+/// ONNX Swish (a function op from opset 24).
+pub const SWISH: OpVersion = OpVersion::new("Swish", 24, 24);
+/// com.microsoft QuickGelu, x * sigmoid(alpha * x) (onnxruntime contrib ops, from memory).
+pub const QUICK_GELU: OpVersion = OpVersion::new("QuickGelu", 1, 1);
 
 pub const KIND: Kind = Kind {
     id: "swish",
@@ -18,19 +24,21 @@ pub const KIND: Kind = Kind {
     recover: recover_beta,
     breakpoints: smooth,
     fused: &[
-        FusedOp {
-            domain: "",
-            op_type: "Swish",
-            since: 24,
-            note: "function op, attribute alpha = beta (default 1.0) (ONNX \
-                   Swish schema); tract 0.23.9 ignores alpha and runs alpha = 1",
-        },
-        FusedOp {
-            domain: "com.microsoft",
-            op_type: "QuickGelu",
-            since: 1,
-            note: "x * sigmoid(alpha * x), attribute alpha default 1.702 (from memory)",
-        },
+        FusedOp::standard(
+            24,
+            SWISH,
+            "function op, attribute alpha = beta (default 1.0) (ONNX Swish schema); tract \
+             0.23.9 ignores alpha and runs alpha = 1",
+        )
+        .attrs(&[AttrParam { attr: "alpha", param: 0, default: 1.0 }]),
+        FusedOp::vendor(
+            "com.microsoft",
+            1,
+            QUICK_GELU,
+            "x * sigmoid(alpha * x), attribute alpha default 1.702 (from memory)",
+        )
+        .attrs(&[AttrParam { attr: "alpha", param: 0, default: 1.702 }])
+        .read(bias_input),
     ],
     formula: "f(x) = x * sigmoid(beta * x)",
     source: "Ramachandran, Zoph & Le 2017, 'Searching for Activation Functions', \
@@ -47,8 +55,7 @@ pub const KIND: Kind = Kind {
                     beta = logit(f(t) / t) / t at t = 1, with t shrunk when |beta| is large so \
                     that sigmoid(beta * t) stays away from 0 and 1.",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 /// beta = logit(f(t) / t) / t, retried at a smaller t until |beta * t| <= 4 (well conditioned).
@@ -73,19 +80,10 @@ pub fn recover_beta(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     None
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let beta = b.scalar(0)?;
-    let attrs = vec![attr_f("alpha", beta as f32)];
-    let y = b.node(ops::SWISH, "swish", &[ctx.input], attrs)?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let beta = b.param(0, "beta");
-    let scaled = b.node(ops::MUL, "mul_beta", &[ctx.input, &beta], vec![])?;
+    let x = b.input();
+    let scaled = b.node(ops::MUL, "mul_beta", &[x, &beta], vec![])?;
     let s = b.node(ops::SIGMOID, "sigmoid", &[&scaled], vec![])?;
-    let y = b.node(ops::MUL, "mul", &[ctx.input, &s], vec![])?;
-    b.finish(&y)
+    b.node(ops::MUL, "mul", &[x, &s], vec![])
 }

@@ -1,7 +1,8 @@
 //! tanh: hyperbolic tangent.
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
-use super::{FusedOp, Kind, nothing_to_recover, smooth};
+use super::emit::{Builder, Unavailable, ops};
+use super::kind::{FusedOp, Kind};
+use super::{nothing_to_recover, smooth};
 
 pub const KIND: Kind = Kind {
     id: "tanh",
@@ -10,13 +11,12 @@ pub const KIND: Kind = Kind {
     reference: |x, _| x.tanh(),
     recover: nothing_to_recover,
     breakpoints: smooth,
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "Tanh",
-        since: 6,
-        note: "versions 6, 13 (from memory); an opset-1 form with the legacy consumed_inputs \
-               attribute existed (from memory)",
-    }],
+    fused: &[FusedOp::standard(
+        6,
+        ops::TANH,
+        "versions 6, 13 (from memory); an opset-1 form with the legacy consumed_inputs \
+         attribute existed (from memory)",
+    )],
     formula: "f(x) = tanh(x) = (exp(x) - exp(-x)) / (exp(x) + exp(-x))",
     source: "ONNX operator schema Tanh (onnx/defs/math/defs.cc)",
     forms: &[
@@ -29,20 +29,11 @@ pub const KIND: Kind = Kind {
     numeric_notes: "tanh(x) = 2 * sigmoid(2x) - 1 exactly, but that form cancels near 0 \
                     (absolute error ~6e-8 in float32 instead of a relative one).",
     piecewise_linear: false,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    tanh_op(ctx, FormId::Fused)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    tanh_op(ctx, FormId::Primitive)
-}
-
-fn tanh_op(ctx: &EmitCtx, form: FormId) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, form)?;
-    let y = b.node(ops::TANH, "tanh", &[ctx.input], vec![])?;
-    b.finish(&y)
+/// Tanh is itself a basic op.
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
+    let x = b.input();
+    b.node(ops::TANH, "tanh", &[x], vec![])
 }

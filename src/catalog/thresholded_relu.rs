@@ -1,9 +1,9 @@
 //! thresholded_relu: x above alpha, 0 elsewhere.
 
-use super::emit::{Builder, EmitCtx, Emitted, FormId, Unavailable, ops};
+use super::emit::{Builder, OpVersion, Unavailable, ops};
+use super::kind::{AttrParam, FusedOp, Kind};
 use super::numeric::{bisect, finite};
-use super::{FusedOp, Kind, Param};
-use crate::onnx::builder::attr_f;
+use super::params::Param;
 
 /// Bisection bracket; its odd width keeps every midpoint off x = 0, where f is 0 for any alpha.
 const BRACKET: (f64, f64) = (-1e6, 1e6 + 1.0);
@@ -20,12 +20,12 @@ pub const KIND: Kind = Kind {
     reference,
     recover,
     breakpoints: |p| vec![p[0]],
-    fused: &[FusedOp {
-        domain: "",
-        op_type: "ThresholdedRelu",
-        since: 10,
-        note: "versions 10, 22 (ONNX ThresholdedRelu schema); alpha default 1.0",
-    }],
+    fused: &[FusedOp::standard(
+        10,
+        OpVersion::new("ThresholdedRelu", 10, 22),
+        "versions 10, 22 (ONNX ThresholdedRelu schema); alpha default 1.0",
+    )
+    .attrs(&[AttrParam { attr: "alpha", param: 0, default: 1.0 }])],
     formula: "f(x) = x for x > alpha, 0 otherwise",
     source: "ONNX operator schema ThresholdedRelu (onnx/defs/math/defs.cc); Konda, Memisevic & \
              Krueger 2014, 'Zero-bias autoencoders and the benefits of co-adapting features', \
@@ -40,8 +40,7 @@ pub const KIND: Kind = Kind {
                     to adjacent doubles and reports the last x where f is 0, so a float32 \
                     alpha is recovered exactly.",
     piecewise_linear: true,
-    fused_form: Some(fused),
-    primitive_form: primitive,
+    primitive,
 };
 
 fn reference(x: f64, p: &[f64]) -> f64 {
@@ -57,23 +56,9 @@ fn recover(f: &dyn Fn(f64) -> f64) -> Option<Vec<f64>> {
     Some(vec![alpha])
 }
 
-fn fused(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Fused)?;
-    let alpha = b.scalar(0)?;
-    let attrs = vec![attr_f("alpha", alpha as f32)];
-    let y = b.node(
-        ops::THRESHOLDED_RELU,
-        "thresholded_relu",
-        &[ctx.input],
-        attrs,
-    )?;
-    b.finish(&y)
-}
-
-fn primitive(ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-    let mut b = Builder::new(ctx, &KIND, FormId::Primitive)?;
+fn primitive(b: &mut Builder) -> Result<String, Unavailable> {
     let (alpha, zero) = (b.param(0, "alpha"), b.constant("zero", 0.0));
-    let above = b.node(ops::GREATER, "greater", &[ctx.input, &alpha], vec![])?;
-    let y = b.node(ops::WHERE, "where", &[&above, ctx.input, &zero], vec![])?;
-    b.finish(&y)
+    let x = b.input();
+    let above = b.node(ops::GREATER, "greater", &[x, &alpha], vec![])?;
+    b.node(ops::WHERE, "where", &[&above, x, &zero], vec![])
 }

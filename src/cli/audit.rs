@@ -5,20 +5,17 @@
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
-use anyhow::{Context, Result};
+use anyhow::Result;
 
-use crate::measure::{self, CompareOptions, DriftReport};
+use crate::audit::{self, Audit, Verdict};
+use crate::onnx::SaveOptions;
 use crate::onnx::model::write_atomic;
-use crate::onnx::{Model, ModelIndex, SaveOptions};
-use crate::plan::Plan;
 use crate::report::html::{self, ModelSection};
-use crate::report::summary::{ModelSummary, Verdict, summarize};
 use crate::report::{drift_table, plan_table};
-use crate::{rewrite, run};
 
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
-use super::plan_args::{Conversion, PlanArgs};
+use super::plan_args::PlanArgs;
 use super::{EXIT_OVER_BUDGET, output};
 
 #[derive(Debug, clap::Args)]
@@ -50,7 +47,8 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let conversion = args.plan.conversion()?;
-    let audit = audit_model(&args.model, &conversion, &args.inputs, &opts)?;
+    let inputs = args.inputs.source(false)?;
+    let audit = audit::audit(&args.model, &conversion, &inputs, &opts)?;
     if let Some(out) = &args.output {
         audit.rewritten.save(out, &SaveOptions::default())?;
     }
@@ -89,46 +87,6 @@ pub fn run(args: Args) -> Result<ExitCode> {
         ExitCode::SUCCESS
     } else {
         ExitCode::from(EXIT_OVER_BUDGET)
-    })
-}
-
-/// One model scanned, planned, rewritten in memory and measured.
-pub struct Audit {
-    pub plan: Plan,
-    pub rewritten: Model,
-    pub drift: DriftReport,
-}
-
-impl Audit {
-    /// The audit in a few figures, with its verdict.
-    pub fn summary(&self) -> ModelSummary {
-        summarize(&self.plan, &self.drift)
-    }
-}
-
-/// Audits the model at `path`: the job `audit` does for one model and `batch` for each.
-pub fn audit_model(
-    path: &Path,
-    conversion: &Conversion,
-    inputs: &InputArgs,
-    opts: &CompareOptions,
-) -> Result<Audit> {
-    let model = Model::load(path)?;
-    let index = ModelIndex::build(&model).with_context(|| format!("'{}'", path.display()))?;
-    let plan = conversion.plan(&index, path)?;
-    let (rewritten, _) = rewrite::apply(&model, &index, &plan)?;
-    let specs =
-        run::input_specs(&model.encode()).with_context(|| format!("'{}'", path.display()))?;
-    let loaded = inputs.load(&specs)?;
-    let opts = CompareOptions {
-        input_source: loaded.source,
-        ..opts.clone()
-    };
-    let drift = measure::compare(&model, &rewritten, &loaded.samples, &opts)?;
-    Ok(Audit {
-        plan,
-        rewritten,
-        drift,
     })
 }
 

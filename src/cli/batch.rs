@@ -6,22 +6,21 @@
 //! model failed (or the batch itself could not start).
 
 use std::io::IsTerminal;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::process::ExitCode;
 use std::time::Instant;
 
-use anyhow::{Context, Result};
+use anyhow::Result;
 
-use crate::batch::{self, BatchReport, Job, ModelRow};
-use crate::onnx::SaveOptions;
+use crate::audit::{Audit, BatchReport, ModelRow, Verdict};
+use crate::batch::{self, Job};
 use crate::onnx::model::write_atomic;
 use crate::report::batch_table;
 use crate::report::html::{self, ModelSection};
 
-use super::audit::{Audit, audit_model};
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
-use super::plan_args::{Conversion, PlanArgs};
+use super::plan_args::PlanArgs;
 use super::{EXIT_ERROR, EXIT_OVER_BUDGET, output};
 
 #[derive(Debug, clap::Args)]
@@ -67,20 +66,17 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let conversion = args.plan.conversion()?;
+    let inputs = args.inputs.source(true)?;
     let jobs = batch::discover(&args.paths, &args.out_dir)?;
     let threads = args
         .jobs
         .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()))
         .max(1);
-    let inputs = InputArgs {
-        ignore_unused_dims: true,
-        ..args.inputs.clone()
-    };
     let progress = Progress::new(jobs.len());
     let results = batch::run_ordered(
         &jobs,
         threads,
-        |job| convert(job, &args.out_dir, &conversion, &inputs, &opts),
+        |job| batch::convert(job, &args.out_dir, &conversion, &inputs, &opts),
         |i, r| progress.finished(&jobs[i], r),
     );
     progress.clear();
@@ -115,31 +111,11 @@ pub fn run(args: Args) -> Result<ExitCode> {
     } else {
         output::print(&batch_table::text(&report))?;
     }
-    Ok(ExitCode::from(if report.totals.errors > 0 {
-        EXIT_ERROR
-    } else if report.totals.passed < report.totals.models {
-        EXIT_OVER_BUDGET
-    } else {
-        0
+    Ok(ExitCode::from(match report.worst_verdict() {
+        Verdict::Error => EXIT_ERROR,
+        Verdict::Pass => 0,
+        Verdict::OverBudget | Verdict::Unserved => EXIT_OVER_BUDGET,
     }))
-}
-
-/// Audits one model and writes its conversion; nothing is written when any step fails.
-fn convert(
-    job: &Job,
-    out_dir: &Path,
-    conversion: &Conversion,
-    inputs: &InputArgs,
-    opts: &crate::measure::CompareOptions,
-) -> Result<Audit> {
-    let audit = audit_model(&job.source, conversion, inputs, opts)?;
-    let out = out_dir.join(&job.relative);
-    if let Some(parent) = out.parent() {
-        std::fs::create_dir_all(parent)
-            .with_context(|| format!("cannot create '{}'", parent.display()))?;
-    }
-    audit.rewritten.save(&out, &SaveOptions::default())?;
-    Ok(audit)
 }
 
 /// A progress bar on a terminal; plain lines on standard error otherwise.

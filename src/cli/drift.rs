@@ -38,24 +38,24 @@ pub struct Args {
     inputs: InputArgs,
     #[command(flatten)]
     measure: MeasureArgs,
-    /// Print JSON instead of text (schema: see the documentation of actswap::measure::report).
+    /// Print JSON instead of text (schema: see the documentation of actswap::measure::result).
     #[arg(long, help_heading = "Output")]
     json: bool,
 }
 
 pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
+    let inputs = args.inputs.source(false)?;
     let original = Model::load(&args.original)?;
     let rewritten = Model::load(&args.rewritten)?;
-    let tract = run::prepare(&original.encode(), Some(original.dir()))
+    let specs = run::input_specs(&original.encode())
         .with_context(|| format!("'{}'", args.original.display()))?;
-    let loaded = args.inputs.load(tract.inputs())?;
-    drop(tract);
+    let loaded = inputs.load(&specs)?;
     let opts = CompareOptions {
         input_source: loaded.source,
         ..opts
     };
-    let report = measure::compare(&original, &rewritten, &loaded.samples, &opts)?;
+    let report = measure::compare_models(&original, &rewritten, &loaded.samples, &opts)?;
     if args.json {
         output::print_json(&report.to_json())?;
     } else {

@@ -17,11 +17,10 @@ use std::path::PathBuf;
 
 use anyhow::{Context, Result, bail};
 
+use crate::audit::{InputSource, Origin};
 use crate::run::inputs::{
-    Binding, DEFAULT_MAX_ELEMENTS, Distribution, InputLoader, RandomInputs, parse_dim_size,
-    symbolic_dims,
+    Binding, DEFAULT_MAX_ELEMENTS, Distribution, RandomInputs, parse_dim_size,
 };
-use crate::run::{InputSpec, Sample};
 
 /// Random input distributions.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -62,51 +61,29 @@ pub struct InputArgs {
     /// Refuse any input tensor with more elements than this.
     #[arg(long, value_name = "N", default_value_t = DEFAULT_MAX_ELEMENTS)]
     pub max_elements: usize,
-    /// Ignore a `--dim` no input of the model uses (a batch shares its dims across models)
-    /// instead of refusing it as a likely typo.
-    #[arg(skip)]
-    pub ignore_unused_dims: bool,
-}
-
-/// Samples and a description of where they came from.
-#[derive(Debug, Clone)]
-pub struct LoadedSamples {
-    pub samples: Vec<Sample>,
-    pub source: String,
 }
 
 impl InputArgs {
-    /// Builds the samples for a model with these inputs.
-    pub fn load(&self, inputs: &[InputSpec]) -> Result<LoadedSamples> {
-        let loader = InputLoader::new(inputs).with_max_elements(self.max_elements);
-        if let Some(dir) = &self.inputs_dir {
-            let samples = loader.from_folder(dir)?;
-            return Ok(LoadedSamples {
-                samples,
-                source: format!("folder {}", dir.display()),
-            });
-        }
-        if !self.input.is_empty() {
+    /// Validates the flags into an input source, before any model is read. With
+    /// `ignore_unused_dims`, a `--dim` that a model does not use is ignored (a batch shares its
+    /// dims across models) instead of refused as a likely typo.
+    pub fn source(&self, ignore_unused_dims: bool) -> Result<InputSource> {
+        let origin = if let Some(dir) = &self.inputs_dir {
+            Origin::Folder(dir.clone())
+        } else if !self.input.is_empty() {
             let bindings = self
                 .input
                 .iter()
                 .map(|b| Binding::parse(b))
                 .collect::<Result<Vec<_>, _>>()?;
-            let samples = loader.from_bindings(&bindings)?;
-            return Ok(LoadedSamples {
-                samples,
-                source: format!("files {}", self.input.join(", ")),
-            });
-        }
-        let mut spec = self.random()?;
-        if self.ignore_unused_dims {
-            let used = symbolic_dims(inputs);
-            spec.dims.retain(|name, _| used.contains(&name.as_str()));
-        }
-        let samples = loader.random(&spec)?;
-        Ok(LoadedSamples {
-            samples,
-            source: describe_random(&spec),
+            Origin::Files(bindings)
+        } else {
+            Origin::Random(self.random()?)
+        };
+        Ok(InputSource {
+            origin,
+            max_elements: self.max_elements,
+            ignore_unused_dims,
         })
     }
 
@@ -153,22 +130,6 @@ fn parse_range(text: &str) -> Result<(f64, f64)> {
         bail!(bad());
     }
     Ok((lo, hi))
-}
-
-fn describe_random(spec: &RandomInputs) -> String {
-    let dist = match spec.distribution {
-        Distribution::Normal { mean, std_dev } => {
-            format!("normal (mean {mean}, standard deviation {std_dev})")
-        }
-        Distribution::Uniform { low, high } => format!("uniform on [{low}, {high})"),
-    };
-    let dims: Vec<String> = spec.dims.iter().map(|(k, v)| format!("{k}={v}")).collect();
-    let dims = if dims.is_empty() {
-        String::new()
-    } else {
-        format!(", dims {}", dims.join(" "))
-    };
-    format!("random {dist}, seed {}{dims}", spec.seed)
 }
 
 #[cfg(test)]

@@ -1,14 +1,10 @@
 //! What to convert to (`--to`, `--target`, `--site`), shared by `swap` and `audit`.
 
-use std::path::Path;
+use anyhow::Result;
 
-use anyhow::{Result, bail};
-
-use crate::onnx::ModelIndex;
+use crate::audit::Conversion;
 use crate::plan::profile::Profile;
 use crate::plan::request::Request;
-use crate::plan::{Plan, Policy};
-use crate::scan;
 
 #[derive(Debug, clap::Args)]
 pub struct PlanArgs {
@@ -23,13 +19,6 @@ pub struct PlanArgs {
     sites: Vec<String>,
 }
 
-/// Parsed requests or profile, checked before any model is read.
-pub struct Conversion {
-    requests: Vec<Request>,
-    profile: Option<Profile>,
-    sites: Vec<String>,
-}
-
 impl PlanArgs {
     /// Parses the requests or loads the profile; one of them is required.
     pub fn conversion(&self) -> Result<Conversion> {
@@ -39,36 +28,6 @@ impl PlanArgs {
             .map(|t| Request::parse(t))
             .collect::<Result<_>>()?;
         let profile = self.target.as_deref().map(Profile::load).transpose()?;
-        if requests.is_empty() && profile.is_none() {
-            bail!("say what to convert to: --to KIND=FORM (repeatable) or --target PROFILE");
-        }
-        Ok(Conversion {
-            requests,
-            profile,
-            sites: self.sites.clone(),
-        })
-    }
-}
-
-impl Conversion {
-    /// Scans the model, keeps the sites asked for (refusing unknown ids) and plans them.
-    pub fn plan(&self, index: &ModelIndex, model: &Path) -> Result<Plan> {
-        let mut sites = scan::scan(index).sites;
-        if !self.sites.is_empty() {
-            for id in &self.sites {
-                if !sites.iter().any(|s| &s.id == id) {
-                    bail!(
-                        "no site '{id}' in '{}' (see `actswap scan`)",
-                        model.display()
-                    );
-                }
-            }
-            sites.retain(|s| self.sites.contains(&s.id));
-        }
-        let policy = match &self.profile {
-            Some(p) => Policy::Target(p),
-            None => Policy::Requests(&self.requests),
-        };
-        Ok(Plan::build(index, sites, &policy))
+        Conversion::new(requests, profile, self.sites.clone())
     }
 }

@@ -39,8 +39,12 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
     let mut report = scan::scan(&index);
     if !args.kinds.is_empty() {
-        report.sites.retain(|s| args.kinds.contains(&s.kind));
-        report.counts.retain(|k, _| args.kinds.contains(k));
+        report
+            .sites
+            .retain(|s| args.kinds.iter().any(|k| k == s.kind.id));
+        report
+            .counts
+            .retain(|k, _| args.kinds.iter().any(|a| a == k));
     }
     if args.json {
         output::print_json(&serde_json::to_value(&report)?)?;

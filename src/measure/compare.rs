@@ -1,9 +1,10 @@
 //! Comparing an original model with its rewrite on the same samples: drift per site and at every
 //! graph output, budgets, and latency. The library entry of the `drift` and `audit` commands.
 //!
-//! Both models are scanned; sites are matched by graph and output tensor name (a rewrite keeps a
-//! site's output name). Each model runs once per sample with every matched site's input and
-//! output requested as extra outputs (top-level graph only). Per matched site:
+//! The sites come as pairs (original, counterpart): from the plan and the applied rewrite in
+//! `audit`, from [`super::pairs::by_output`] when two files are compared. Each model runs once
+//! per sample with every pair's input and output requested as extra outputs (top-level graph
+//! only). Per pair:
 //! - **local drift**: the rewritten model's site, isolated ([`super::isolate`]), against the
 //!   original site, isolated, both fed the very tensor the original site received. Both sides go
 //!   through the same isolation and the same tract optimizer, so the difference is the swap's
@@ -16,8 +17,6 @@
 //! - the observed input range and the catalogue's worst-case error of (kind_a, params_a) vs
 //!   (kind_b, params_b) over [min, max] (per-channel parameters: the worst channel).
 
-use std::collections::{HashMap, HashSet};
-
 use anyhow::{Context, Result, ensure};
 
 use super::budget::{self, Budgets, Offender, Scope};
@@ -25,12 +24,13 @@ use super::capture::{self, Values, widen};
 use super::isolate::{self, Extract, InputDecl, Part};
 use super::latency::{self, LatencyOptions};
 use super::metrics::{DriftAccumulator, Tolerance, Top1Accumulator, top1_applies};
+use super::pairs::SitePair;
 use super::range::RangeCollector;
-use super::report::{CAUTION, DriftReport, LocalBasis, OutputDrift, SiteDrift, UnmatchedSite};
-use crate::catalog::{self, substitute};
+use super::result::{CAUTION, DriftReport, LocalBasis, OutputDrift, SiteDrift, UnmatchedSite};
+use crate::catalog::substitute;
 use crate::onnx::{GraphKind, Model, ModelIndex};
 use crate::run::{self, NamedTensor, Sample, TractModel};
-use crate::scan::{self, ParamValue, Site};
+use crate::scan::Site;
 
 /// How to compare.
 #[derive(Debug, Clone, PartialEq)]
@@ -55,17 +55,42 @@ impl Default for CompareOptions {
     }
 }
 
-/// Compares `rewritten` with `original` on `samples`; see the module doc.
-pub fn compare(
+/// Compares two models given as files: both are scanned and their sites paired by output
+/// tensor ([`super::pairs::by_output`]), then [`compare`]d.
+pub fn compare_models(
     original: &Model,
     rewritten: &Model,
+    samples: &[Sample],
+    opts: &CompareOptions,
+) -> Result<DriftReport> {
+    let a = ModelIndex::build(original).context("original model")?;
+    let b = ModelIndex::build(rewritten).context("rewritten model")?;
+    let (pairs, unmatched) = super::pairs::by_output(&a, &b);
+    compare(&a, &b, &pairs, unmatched, samples, opts)
+}
+
+/// Compares `rewritten` with `original` on `samples`, site by site for `pairs`; `unmatched`
+/// are the sites found in only one model. See the module doc.
+pub fn compare(
+    original: &ModelIndex,
+    rewritten: &ModelIndex,
+    pairs: &[SitePair],
+    unmatched: Vec<UnmatchedSite>,
     samples: &[Sample],
     opts: &CompareOptions,
 ) -> Result<DriftReport> {
     ensure!(!samples.is_empty(), "no input samples to compare on");
     let a = Side::load(original, "original model")?;
     let b = Side::load(rewritten, "rewritten model")?;
-    let (pairs, unmatched) = match_sites(&a, &b);
+    let pairs: Vec<Pair> = pairs
+        .iter()
+        .map(|p| Pair {
+            a: &p.a,
+            b: &p.b,
+            input: a.input_capture(&p.a),
+            top: p.a.graph_index == 0,
+        })
+        .collect();
 
     let mut extra_a = Vec::new();
     let mut extra_b = Vec::new();
@@ -127,8 +152,8 @@ pub fn compare(
     sites.sort_by_key(|s| !offending(Scope::Site, &s.output));
 
     Ok(DriftReport {
-        model_a: file_label(original),
-        model_b: file_label(rewritten),
+        model_a: file_label(original.model),
+        model_b: file_label(rewritten.model),
         samples: samples.len(),
         input_source: opts.input_source.clone(),
         tolerance: opts.tolerance,
@@ -143,24 +168,21 @@ pub fn compare(
     })
 }
 
-/// One model with its index, sites and tract model.
-struct Side<'m> {
+/// One model with its index and tract model.
+struct Side<'i, 'm> {
     model: &'m Model,
-    index: ModelIndex<'m>,
-    sites: Vec<Site>,
+    index: &'i ModelIndex<'m>,
     tract: TractModel,
 }
 
-impl<'m> Side<'m> {
-    fn load(model: &'m Model, what: &str) -> Result<Side<'m>> {
-        let index = ModelIndex::build(model).with_context(|| what.to_string())?;
-        let sites = scan::scan(&index).sites;
+impl<'i, 'm> Side<'i, 'm> {
+    fn load(index: &'i ModelIndex<'m>, what: &str) -> Result<Side<'i, 'm>> {
+        let model = index.model;
         let tract =
             run::prepare(&model.encode(), Some(model.dir())).with_context(|| what.to_string())?;
         Ok(Side {
             model,
             index,
-            sites,
             tract,
         })
     }
@@ -230,10 +252,10 @@ impl Pair<'_> {
             id_b: self.b.id.clone(),
             output: self.a.output.clone(),
             graph: self.a.graph.clone(),
-            kind_a: self.a.kind.clone(),
+            kind_a: self.a.kind,
             params_a: self.a.params.clone(),
             ops_a: self.a.ops.clone(),
-            kind_b: self.b.kind.clone(),
+            kind_b: self.b.kind,
             params_b: self.b.params.clone(),
             ops_b: self.b.ops.clone(),
             local: None,
@@ -247,43 +269,6 @@ impl Pair<'_> {
             notes,
         }
     }
-}
-
-/// Sites matched by (graph, output), in the original's order, and the sites left unmatched.
-fn match_sites<'s>(a: &'s Side, b: &'s Side) -> (Vec<Pair<'s>>, Vec<UnmatchedSite>) {
-    let by_output: HashMap<(&str, &str), &Site> = b
-        .sites
-        .iter()
-        .map(|s| ((s.graph.as_str(), s.output.as_str()), s))
-        .collect();
-    let mut matched: HashSet<&str> = HashSet::new();
-    let mut pairs = Vec::new();
-    let mut unmatched = Vec::new();
-    let unmatched_site = |model, s: &Site| UnmatchedSite {
-        model,
-        id: s.id.clone(),
-        kind: s.kind.clone(),
-        output: s.output.clone(),
-        graph: s.graph.clone(),
-    };
-    for sa in &a.sites {
-        match by_output.get(&(sa.graph.as_str(), sa.output.as_str())) {
-            Some(sb) => {
-                matched.insert(sb.id.as_str());
-                pairs.push(Pair {
-                    a: sa,
-                    b: sb,
-                    input: a.input_capture(sa),
-                    top: sa.graph_index == 0,
-                });
-            }
-            None => unmatched.push(unmatched_site("a", sa)),
-        }
-    }
-    for sb in b.sites.iter().filter(|s| !matched.contains(s.id.as_str())) {
-        unmatched.push(unmatched_site("b", sb));
-    }
-    (pairs, unmatched)
 }
 
 fn measure_propagated(
@@ -341,51 +326,12 @@ fn measure_range(p: &Pair, rec: &mut SiteDrift, values_a: &[Values]) {
 
 /// The catalogue's worst-case |a - b| over [lo, hi], worst channel first; and where.
 fn worst_case(a: &Site, b: &Site, lo: f64, hi: f64) -> Result<(f64, f64), String> {
-    let kind = |s: &Site| catalog::get(&s.kind).ok_or_else(|| format!("unknown kind {}", s.kind));
-    let (ka, kb) = (kind(a)?, kind(b)?);
-    let channels = |s: &Site| {
-        s.params
-            .values()
-            .filter_map(|v| match v {
-                ParamValue::PerChannel(c) => Some(c.len()),
-                ParamValue::Scalar(_) => None,
-            })
-            .max()
+    let (pa, pb) = match (&a.params, &b.params) {
+        (Some(pa), Some(pb)) => (pa, pb),
+        _ => return Err("a parameter is only known at run time".into()),
     };
-    let n = match (channels(a), channels(b)) {
-        (Some(x), Some(y)) if x != y => {
-            return Err(format!("{x} channels in the original, {y} in the new site"));
-        }
-        (x, y) => x.or(y).unwrap_or(1),
-    };
-    let params = |k: &catalog::Kind, s: &Site, c: usize| -> Vec<f64> {
-        k.params
-            .iter()
-            .map(|p| match s.params.get(p.name) {
-                Some(ParamValue::Scalar(v)) => *v,
-                Some(ParamValue::PerChannel(vs)) => vs[c],
-                None => p.default,
-            })
-            .collect()
-    };
-    let mut seen: Vec<(Vec<f64>, Vec<f64>)> = Vec::new();
-    let mut worst: Option<(f64, f64)> = None;
-    for c in 0..n {
-        let (pa, pb) = (params(ka, a, c), params(kb, b, c));
-        if seen.iter().any(|(x, y)| *x == pa && *y == pb) {
-            continue;
-        }
-        let e = if ka.id == kb.id && pa == pb {
-            substitute::ErrorBound { value: 0.0, at: lo }
-        } else {
-            substitute::max_abs_error((ka, &pa), (kb, &pb), lo, hi)
-        };
-        seen.push((pa, pb));
-        if worst.is_none_or(|(v, _)| e.value > v || e.value.is_nan()) {
-            worst = Some((e.value, e.at));
-        }
-    }
-    worst.ok_or_else(|| "no channels".to_string())
+    let (e, _) = substitute::max_abs_error_per_channel((a.kind, pa), (b.kind, pb), lo, hi)?;
+    Ok((e.value, e.at))
 }
 
 /// An isolated site pair: both extracts and the declared input.
@@ -424,8 +370,8 @@ fn measure_local(
         } else {
             let built = (|| -> Result<Isolated> {
                 let decl = InputDecl::of(values_a.iter().map(|v| &v[&p.a.input].tensor))?;
-                let ext_a = isolate::extract(&a.index, p.a).context("original model")?;
-                let ext_b = isolate::extract(&b.index, p.b).context("rewritten model")?;
+                let ext_a = isolate::extract(a.index, p.a).context("original model")?;
+                let ext_b = isolate::extract(b.index, p.b).context("rewritten model")?;
                 let identical = p.top
                     && ext_a.nodes == ext_b.nodes
                     && ext_a.initializers == ext_b.initializers

@@ -109,7 +109,7 @@ pub fn isolate(model: &Model, index: &ModelIndex, site: &Site, decl: &InputDecl)
 /// Takes `site` out of its graph: its nodes, the initializers they read and the support nodes
 /// that compute the other tensors they read from constants (or from the site's input).
 pub fn extract(index: &ModelIndex, site: &Site) -> Result<Extract> {
-    let context = || format!("site {} ({}) in {}", site.id, site.kind, site.graph);
+    let context = || format!("site {} ({}) in {}", site.id, site.kind.id, site.graph);
     extract_nodes(index, site).with_context(context)
 }
 

@@ -1,9 +1,9 @@
 //! Measuring what a swap costs: numeric drift per site and at the outputs, and latency, with both
 //! models run on CPU by tract ([`crate::run`]).
 //!
-//! [`compare`] is the entry point; [`metrics`] defines the figures, [`isolate`] cuts a site out
-//! of its model, [`latency`] times plans, [`budget`] judges the figures and [`report`] holds the
-//! result and its JSON schema.
+//! [`compare`] is the entry point, given site pairs ([`pairs`]); [`metrics`] defines the
+//! figures, [`isolate`] cuts a site out of its model, [`latency`] times plans, [`budget`] judges
+//! the figures and [`result`] holds the result and its JSON schema.
 
 pub mod budget;
 pub mod capture;
@@ -11,12 +11,14 @@ pub mod compare;
 pub mod isolate;
 pub mod latency;
 pub mod metrics;
+pub mod pairs;
 pub mod range;
-pub mod report;
+pub mod result;
 mod stats;
 
 pub use budget::{Budgets, Offender, Scope};
-pub use compare::{CompareOptions, compare};
+pub use compare::{CompareOptions, compare, compare_models};
 pub use latency::LatencyOptions;
 pub use metrics::{Drift, Tolerance, Top1};
-pub use report::{CAUTION, DriftReport};
+pub use pairs::SitePair;
+pub use result::{CAUTION, DriftReport};

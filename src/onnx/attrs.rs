@@ -24,9 +24,3 @@ pub fn string(node: &NodeProto, name: &str) -> Option<String> {
         .and_then(|s| std::str::from_utf8(s).ok())
         .map(str::to_string)
 }
-
-/// True when an attribute refers to an attribute of the enclosing function (`ref_attr_name`),
-/// so its value is only known at the call site.
-pub fn is_reference(node: &NodeProto, name: &str) -> bool {
-    get(node, name).is_some_and(|a| a.ref_attr_name.is_some())
-}

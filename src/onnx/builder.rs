@@ -148,18 +148,6 @@ fn raw_tensor(name: &str, dims: &[i64], dt: DataType, raw: Vec<u8>) -> TensorPro
     }
 }
 
-/// An int64 tensor stored little-endian in `raw_data`.
-pub fn tensor_i64(name: &str, dims: &[i64], values: &[i64]) -> TensorProto {
-    let raw: Vec<u8> = values.iter().flat_map(|v| v.to_le_bytes()).collect();
-    TensorProto {
-        name: Some(name.into()),
-        dims: dims.to_vec(),
-        data_type: Some(DataType::Int64 as i32),
-        raw_data: Some(Bytes::from(raw)),
-        ..Default::default()
-    }
-}
-
 /// A dimension: a size or a symbolic name.
 #[derive(Debug, Clone, Copy)]
 pub enum Dim<'a> {

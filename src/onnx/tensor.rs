@@ -6,7 +6,6 @@ use std::path::Path;
 
 use anyhow::{Context, Result, bail};
 use bytes::Bytes;
-use ndarray::{ArrayD, IxDyn};
 
 use super::external;
 use super::proto::{TensorProto, tensor_proto::DataType};
@@ -21,12 +20,6 @@ pub struct TensorValue {
 }
 
 impl TensorValue {
-    /// The value as an n-dimensional array.
-    pub fn to_array(&self) -> ArrayD<f64> {
-        ArrayD::from_shape_vec(IxDyn(&self.dims), self.data.clone())
-            .expect("element count checked when the tensor was read")
-    }
-
     /// Number of elements.
     pub fn len(&self) -> usize {
         self.data.len()

@@ -4,7 +4,7 @@
 
 use anyhow::{Result, bail};
 
-use crate::catalog::{self, Kind, emit::FormId};
+use crate::catalog::{self, Form, Kind};
 
 /// One parsed `--to` request.
 #[derive(Debug, Clone)]
@@ -14,7 +14,7 @@ pub struct Request {
     /// The kind to emit; `None` keeps the site's own kind.
     pub to: Option<&'static Kind>,
     /// The form to emit; `None` picks fused where the model's opset has it, else primitive.
-    pub form: Option<FormId>,
+    pub form: Option<Form>,
     /// The request as written.
     pub text: String,
 }
@@ -32,8 +32,8 @@ impl Request {
         let (to, form) = match rhs.trim().split_once(':') {
             Some((k, f)) => (Some(kind(k, text)?), Some(form(f, text)?)),
             None => match rhs.trim() {
-                "fused" => (None, Some(FormId::Fused)),
-                "primitive" => (None, Some(FormId::Primitive)),
+                "fused" => (None, Some(Form::Fused)),
+                "primitive" => (None, Some(Form::Primitive)),
                 k => (Some(kind(k, text)?), None),
             },
         };
@@ -71,10 +71,10 @@ fn kind(id: &str, text: &str) -> Result<&'static Kind> {
     })
 }
 
-fn form(name: &str, text: &str) -> Result<FormId> {
+fn form(name: &str, text: &str) -> Result<Form> {
     match name.trim() {
-        "fused" => Ok(FormId::Fused),
-        "primitive" => Ok(FormId::Primitive),
+        "fused" => Ok(Form::Fused),
+        "primitive" => Ok(Form::Primitive),
         other => bail!("--to '{text}': unknown form '{other}' (expected fused or primitive)"),
     }
 }

@@ -3,8 +3,7 @@
 
 use super::drift_table::num;
 use super::table;
-use crate::batch::{BatchReport, ModelRow};
-use crate::report::summary::Verdict;
+use crate::audit::{BatchReport, ModelRow, Verdict};
 
 const HEADER: [&str; 9] = [
     "model",

@@ -1,11 +1,9 @@
 //! The terminal form of a drift report: what is over budget, a table per site and per output,
 //! latency, the verdict and the caution line.
 
-use std::collections::BTreeMap;
-
+use crate::catalog::{Kind, NamedParams, ParamValue, Params};
 use crate::measure::DriftReport;
-use crate::measure::report::{LocalBasis, OutputDrift, SiteDrift};
-use crate::scan::ParamValue;
+use crate::measure::result::{LocalBasis, OutputDrift, SiteDrift};
 
 use super::table;
 
@@ -92,7 +90,7 @@ pub fn render(r: &DriftReport) -> String {
             };
             out.push_str(&format!(
                 "  {model} {} {} -> {} ({})\n",
-                u.id, u.kind, u.output, u.graph
+                u.id, u.kind.id, u.output, u.graph
             ));
         }
     }
@@ -128,7 +126,10 @@ fn site_row(s: &SiteDrift) -> Vec<String> {
         } else {
             format!("{}/{}", s.id_a, s.id_b)
         },
-        change(kind(&s.kind_a, &s.params_a), kind(&s.kind_b, &s.params_b)),
+        change(
+            kind(s.kind_a, s.params_a.as_ref()),
+            kind(s.kind_b, s.params_b.as_ref()),
+        ),
         change(s.ops_a.join(" "), s.ops_b.join(" ")),
         s.local.as_ref().map_or_else(dash, |d| match s.local_basis {
             Some(LocalBasis::Identical) => format!("{} (identical)", num(d.max_abs)),
@@ -183,11 +184,13 @@ fn change(a: String, b: String) -> String {
 }
 
 /// `swish(beta=1.702)`, `prelu(slope=[8 per channel])`, `silu`.
-pub(crate) fn kind(id: &str, params: &BTreeMap<String, ParamValue>) -> String {
-    if params.is_empty() {
-        return id.to_string();
+pub(crate) fn kind(kind: &Kind, params: Option<&Params>) -> String {
+    let pairs = NamedParams::of(kind.params, params).pairs();
+    if pairs.is_empty() {
+        return kind.id.to_string();
     }
-    let p: Vec<String> = params
+    let id = kind.id;
+    let p: Vec<String> = pairs
         .iter()
         .map(|(k, v)| match v {
             ParamValue::Scalar(x) => format!("{k}={}", num(*x)),

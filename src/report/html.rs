@@ -24,11 +24,11 @@ mod tables;
 
 use std::fmt::Write;
 
-use crate::measure::report::{CAUTION, SiteDrift};
+use crate::audit::{self, ModelSummary};
+use crate::measure::result::{CAUTION, SiteDrift};
 use crate::measure::{Budgets, DriftReport};
 use crate::plan::Plan;
 use crate::report::drift_table::kind;
-use crate::report::summary::{self, ModelSummary};
 use markup::{esc, fig, full, ratio};
 use swaps::Swap;
 
@@ -49,7 +49,7 @@ impl ModelSection<'_> {
     pub fn summary(&self) -> Option<ModelSummary> {
         match (&self.error, self.plan, self.drift) {
             (Some(e), _, _) => Some(ModelSummary::failed(&self.name, e)),
-            (None, Some(p), Some(d)) => Some(summary::summarize(p, d)),
+            (None, Some(p), Some(d)) => Some(audit::summarize(p, d)),
             _ => None,
         }
     }
@@ -196,7 +196,7 @@ fn section(i: usize, s: &ModelSection) -> String {
                 out,
                 "<li>{model} {} {} → {} ({})</li>",
                 esc(&u.id),
-                esc(&u.kind),
+                esc(u.kind.id),
                 esc(&u.output),
                 esc(&u.graph)
             );
@@ -275,8 +275,8 @@ fn swap(sw: &Swap) -> String {
     let s = sw.sites[0];
     let heading = format!(
         "{} → {}",
-        kind(&s.kind_a, &s.params_a),
-        kind(&s.kind_b, &s.params_b)
+        kind(s.kind_a, s.params_a.as_ref()),
+        kind(s.kind_b, s.params_b.as_ref())
     );
     let ids: Vec<&str> = sw.sites.iter().map(|s| s.id_a.as_str()).collect();
     let mut out = format!(

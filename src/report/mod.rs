@@ -6,5 +6,4 @@ pub mod drift_table;
 pub mod html;
 pub mod plan_table;
 pub mod scan_table;
-pub mod summary;
 pub mod table;

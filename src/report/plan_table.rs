@@ -1,7 +1,7 @@
 //! The terminal form of a plan: one row per site (site, kind, from, to, error bound, action).
 
+use crate::catalog::ParamValue;
 use crate::plan::{Action, Plan};
-use crate::scan::ParamValue;
 
 use super::table;
 
@@ -13,7 +13,7 @@ pub fn render(plan: &Plan) -> String {
             let s = &p.site;
             let from = format!(
                 "{} ({})",
-                format!("{:?}", s.form).to_lowercase(),
+                format!("{:?}", s.spelling).to_lowercase(),
                 s.ops.join(" ")
             );
             let (action, to, bound, why) = match &p.action {
@@ -28,7 +28,7 @@ pub fn render(plan: &Plan) -> String {
                         .kind
                         .params
                         .iter()
-                        .zip(&t.params)
+                        .zip(t.params.values())
                         .map(|(p, v)| match v {
                             ParamValue::Scalar(x) => {
                                 format!("{}={}", p.name, (x * 1e6).round() / 1e6)
@@ -52,7 +52,7 @@ pub fn render(plan: &Plan) -> String {
                     };
                     (
                         "rewrite",
-                        format!("{kind}:{} ({})", t.form, t.ops.join(" ")),
+                        format!("{kind}:{} ({})", t.form, t.ops().join(" ")),
                         bound,
                         t.rule.unwrap_or("").to_string(),
                     )
@@ -60,7 +60,7 @@ pub fn render(plan: &Plan) -> String {
             };
             vec![
                 s.id.clone(),
-                s.kind.clone(),
+                s.kind.id.to_string(),
                 from,
                 action.into(),
                 to,

@@ -1,6 +1,7 @@
 //! The terminal form of a scan: one row per site, then a summary by kind.
 
-use crate::scan::{ParamValue, ScanReport, Site};
+use crate::catalog::ParamValue;
+use crate::scan::{ScanReport, Site};
 
 use super::table;
 
@@ -49,16 +50,17 @@ pub fn render(report: &ScanReport) -> String {
 }
 
 fn row(s: &Site) -> Vec<String> {
-    let params = if s.params.is_empty() {
+    let pairs = s.named_params().pairs();
+    let params = if pairs.is_empty() {
         "-".to_string()
     } else {
-        s.params
+        pairs
             .iter()
             .map(|(k, v)| format!("{k}={}", short(v)))
             .collect::<Vec<_>>()
             .join(" ")
     };
-    let form = match (&s.domain, s.form) {
+    let form = match (&s.domain, s.spelling) {
         (Some(d), _) => format!("fused ({d})"),
         (None, f) => format!("{f:?}").to_lowercase(),
     };
@@ -72,7 +74,7 @@ fn row(s: &Site) -> Vec<String> {
     }
     vec![
         s.id.clone(),
-        s.kind.clone(),
+        s.kind.id.to_string(),
         params,
         form,
         s.ops.join(" "),

@@ -1,12 +1,13 @@
 //! The rewrite engine: one patch per planned site, all applied to a copy of the model at once.
 //!
-//! A patch removes the site's compute nodes and inserts the new form's nodes where the first of
+//! The plan holds the form it wrote for each site; the rewrite only names and applies it. A
+//! patch removes the site's compute nodes and inserts the new form's nodes where the first of
 //! them stood, so node order stays topological; the last new node writes the site's output
 //! tensor, so consumers and graph outputs keep their names. New names derive from the site
 //! output (`<output>.<form>` or `<output>.<kind>` for a substitution) and are made unique across
-//! the model. Constants (initializers, Constant nodes and casts of them) that only the removed
-//! nodes read are removed; shared ones survive while still used. Every other message is left as
-//! it was. The result is validated before it is returned.
+//! the model (`.2`, `.3`, ... after the prefix). Constants (initializers, Constant nodes and casts
+//! of them) that only the removed nodes read are removed; shared ones survive while still used.
+//! Every other message is left as it was. The result is validated before it is returned.
 
 mod graph_mut;
 mod validate;
@@ -15,11 +16,12 @@ use std::collections::{BTreeMap, HashSet};
 
 use anyhow::{Context, Result, bail};
 
-use crate::catalog::emit::{self, EmitCtx};
+use crate::catalog::Form;
 use crate::onnx::builder;
 use crate::onnx::proto::{NodeProto, TensorProto};
 use crate::onnx::{GraphKind, Model, ModelIndex};
-use crate::plan::{Plan, SiteCtx};
+use crate::plan::{Action, Plan};
+use crate::scan::{Site, Spelling};
 use graph_mut::GraphMut;
 
 /// What one site became.
@@ -29,6 +31,8 @@ pub struct Applied {
     pub output: String,
     /// Names of the nodes the rewrite inserted.
     pub nodes: Vec<String>,
+    /// The first output of each inserted node, in order (the last is the site's output).
+    pub node_outputs: Vec<String>,
     /// Names of the initializers (or, in functions, Constant nodes) it added.
     pub constants: Vec<String>,
 }
@@ -45,42 +49,22 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
     let mut taken = all_names(index);
     let mut patches: BTreeMap<usize, Vec<Patch>> = BTreeMap::new();
     let mut applied = Vec::new();
-    for (site, target) in plan.rewrites() {
+    for (site, replacement) in plan.rewrites() {
         let graph = &index.graphs[site.graph_index];
-        let opset = graph.opset("").unwrap_or(1);
-        let ctx = SiteCtx::new(index, site, opset);
-        let args = ctx.args(&target.params);
-        let base = if target.kind.id == site.kind {
-            format!("{}.{}", site.output, target.form)
-        } else {
-            format!("{}.{}", site.output, target.kind.id)
-        };
+        let base = &replacement.emitted;
         let mut attempt = 1;
         let emitted = loop {
-            let prefix = if attempt == 1 {
+            let e = if attempt == 1 {
                 base.clone()
             } else {
-                format!("{base}.{attempt}")
+                base.renamed(&format!("{}.{attempt}", base.prefix), &site.output)
             };
-            let ectx = EmitCtx {
-                input: &site.input,
-                output: &site.output,
-                prefix: &prefix,
-                elem_type: ctx.elem_type,
-                opset,
-                params: &args,
-            };
-            let e = emit::emit(target.kind, target.form, &ectx)
-                .with_context(|| format!("site {} ({}) in {}", site.id, site.kind, site.graph))?;
-            if new_names(&e, &site.output)
-                .iter()
-                .all(|n| !taken.contains(n))
-            {
+            if e.new_names(&site.output).iter().all(|n| !taken.contains(n)) {
                 break e;
             }
             attempt += 1;
         };
-        taken.extend(new_names(&emitted, &site.output));
+        taken.extend(emitted.new_names(&site.output));
         let is_function = matches!(graph.kind, GraphKind::Function { .. });
         let (nodes, initializers, constants) = if is_function {
             let mut consts: Vec<NodeProto> = emitted
@@ -111,6 +95,11 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
             site: site.id.clone(),
             output: site.output.clone(),
             nodes: emitted.nodes.iter().map(|n| n.name().to_string()).collect(),
+            node_outputs: emitted
+                .nodes
+                .iter()
+                .map(|n| n.output.first().cloned().unwrap_or_default())
+                .collect(),
             constants,
         });
         patches.entry(site.graph_index).or_default().push(Patch {
@@ -136,18 +125,68 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
     Ok((out, applied))
 }
 
-/// Names an emission introduces (nodes, intermediate tensors, initializers).
-fn new_names(e: &emit::Emitted, output: &str) -> Vec<String> {
-    let mut v: Vec<String> = e.nodes.iter().map(|n| n.name().to_string()).collect();
-    v.extend(
-        e.nodes
-            .iter()
-            .flat_map(|n| n.output.iter())
-            .filter(|o| o.as_str() != output)
-            .cloned(),
-    );
-    v.extend(e.initializers.iter().map(|t| t.name().to_string()));
-    v
+/// Every planned site's counterpart in the rewritten model, in plan order: the new form for a
+/// site the rewrite replaced, the site itself for one it kept. Nodes are found again by the
+/// tensors they write, which the rewrite keeps (`original` indexes the model the plan was made
+/// for, `rewritten` the result of [`apply`]).
+pub fn counterparts(
+    plan: &Plan,
+    applied: &[Applied],
+    original: &ModelIndex,
+    rewritten: &ModelIndex,
+) -> Result<Vec<Site>> {
+    let mut applied = applied.iter();
+    plan.sites
+        .iter()
+        .map(|p| {
+            let site = &p.site;
+            let graph = &rewritten.graphs[site.graph_index];
+            let locate = |outputs: &mut dyn Iterator<Item = &str>| -> Result<Vec<usize>> {
+                outputs
+                    .map(|o| {
+                        graph.producer(o).with_context(|| {
+                            format!(
+                                "site {}: no node writes '{o}' in the rewritten model",
+                                site.id
+                            )
+                        })
+                    })
+                    .collect()
+            };
+            match &p.action {
+                Action::Rewrite(r) => {
+                    let a = applied.next().context("one applied patch per rewrite")?;
+                    Ok(Site {
+                        kind: r.kind,
+                        params: Some(r.params.clone()),
+                        spelling: match r.form {
+                            Form::Fused => Spelling::Fused,
+                            Form::Primitive => Spelling::Decomposed,
+                        },
+                        domain: None,
+                        ops: r.ops(),
+                        nodes: a.nodes.clone(),
+                        constants: a.constants.clone(),
+                        rewritable: true,
+                        notes: Vec::new(),
+                        node_indices: locate(&mut a.node_outputs.iter().map(String::as_str))?,
+                        ..site.clone()
+                    })
+                }
+                _ => {
+                    let nodes = original.graphs[site.graph_index].nodes;
+                    let mut outputs = site
+                        .node_indices
+                        .iter()
+                        .map(|&n| nodes[n].output.first().map_or("", String::as_str));
+                    Ok(Site {
+                        node_indices: locate(&mut outputs)?,
+                        ..site.clone()
+                    })
+                }
+            }
+        })
+        .collect()
 }
 
 /// Every node, tensor and initializer name in the model.

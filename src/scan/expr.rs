@@ -2,7 +2,7 @@
 //! f64 with the model's own (usually float32-rounded) constants. Constants of more than one element
 //! make the function per-channel: channel `c` reads element `c` of each of them.
 
-use crate::catalog::{self, Kind};
+use crate::catalog::{self, FusedNode, Kind};
 use crate::onnx::attrs;
 use crate::onnx::proto::NodeProto;
 
@@ -46,6 +46,11 @@ pub enum Op {
     GreaterOrEqual,
     LessOrEqual,
     Equal,
+    Sign,
+    And,
+    Or,
+    Xor,
+    Not,
     /// Identity, Cast to a float type, CastLike: the value passes through.
     Pass,
     /// Cast to an integer type.
@@ -134,6 +139,19 @@ impl Expr {
                 Op::GreaterOrEqual => b(a0 >= a1()),
                 Op::LessOrEqual => b(a0 <= a1()),
                 Op::Equal => b(a0 == a1()),
+                Op::Sign => {
+                    if a0 > 0.0 {
+                        1.0
+                    } else if a0 < 0.0 {
+                        -1.0
+                    } else {
+                        a0
+                    }
+                }
+                Op::And => b(a0 != 0.0 && a1() != 0.0),
+                Op::Or => b(a0 != 0.0 || a1() != 0.0),
+                Op::Xor => b((a0 != 0.0) != (a1() != 0.0)),
+                Op::Not => b(a0 == 0.0),
                 Op::Pass => a0,
                 Op::Truncate => a0.trunc(),
                 Op::Clip => {
@@ -208,12 +226,17 @@ impl Op {
             Op::Truncate => 22,
             Op::Clip => 23,
             Op::PRelu => 24,
+            Op::Sign => 27,
+            Op::And => 28,
+            Op::Or => 29,
+            Op::Xor => 30,
+            Op::Not => 31,
             Op::ClipAttr(lo, hi) => {
                 k.extend([25, lo.to_bits(), hi.to_bits()]);
                 return;
             }
             Op::Kind(kind, p) => {
-                let at = catalog::position(kind.id).expect("catalogue kind");
+                let at = catalog::position(kind);
                 k.extend([26, at as u64, p.len() as u64]);
                 k.extend(p.iter().map(|v| v.to_bits()));
                 return;
@@ -230,7 +253,6 @@ pub fn op_of(node: &NodeProto, opset: i64) -> Option<Op> {
         return None;
     }
     let f = |name: &str, default: f64| attrs::float(node, name).unwrap_or(default);
-    let kind = |id: &str| catalog::get(id).expect("catalogue kind");
     Some(match node.op_type() {
         "Add" => Op::Add,
         "Sub" => Op::Sub,
@@ -253,6 +275,11 @@ pub fn op_of(node: &NodeProto, opset: i64) -> Option<Op> {
         "GreaterOrEqual" => Op::GreaterOrEqual,
         "LessOrEqual" => Op::LessOrEqual,
         "Equal" => Op::Equal,
+        "Sign" => Op::Sign,
+        "And" => Op::And,
+        "Or" => Op::Or,
+        "Xor" => Op::Xor,
+        "Not" => Op::Not,
         "Identity" | "CastLike" => Op::Pass,
         "Cast" => {
             use crate::onnx::proto::tensor_proto::DataType::*;
@@ -266,10 +293,16 @@ pub fn op_of(node: &NodeProto, opset: i64) -> Option<Op> {
         "Clip" if opset < 11 => Op::ClipAttr(f("min", f32::MIN as f64), f("max", f32::MAX as f64)),
         "Clip" => Op::Clip,
         "PRelu" => Op::PRelu,
-        "Swish" => Op::Kind(kind("swish"), vec![f("alpha", 1.0)]),
         _ => {
-            let k = super::fused::attribute_kind(node)?;
-            Op::Kind(k, super::fused::attribute_params(node, k))
+            // A fused activation op with its parameters in attributes, evaluated by its
+            // catalogue reference.
+            let fused = FusedNode {
+                node,
+                opset,
+                constant: &|_| None,
+            };
+            let (kind, reading) = catalog::read_fused(&fused)?;
+            Op::Kind(kind, reading.params?.scalar_values()?)
         }
     })
 }

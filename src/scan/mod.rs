@@ -9,7 +9,6 @@
 //! attributes.
 
 mod expr;
-mod fused;
 pub mod site;
 mod wiring;
 
@@ -18,17 +17,13 @@ use std::rc::Rc;
 
 use serde::Serialize;
 
-use crate::catalog::{self, Kind};
+use crate::catalog::{self, ConstInput, FusedNode, Kind, Params};
 use crate::onnx::index::{GraphIndex, ModelIndex};
 use crate::onnx::proto::NodeProto;
+use crate::onnx::proto::tensor_proto::DataType;
 use expr::{Const, Expr, MAX_CHAIN, Op, Operand, Step};
-pub use site::{Form, ParamValue, Site};
+pub use site::{Site, Spelling};
 use wiring::{ABSENT, Wiring};
-
-/// Quick probes tried before the catalogue's full probe set: they reject most wrong kinds cheaply.
-const QUICK_PROBES: &[f64] = &[
-    -7.5, -3.1, -1.7, -0.6, -0.15, 0.2, 0.55, 1.3, 2.4, 3.9, 6.6, 11.0,
-];
 
 /// Per-channel parameter sets larger than this are not identified (one identification per
 /// channel).
@@ -40,7 +35,7 @@ pub struct ScanReport {
     pub model: String,
     pub opsets: BTreeMap<String, i64>,
     pub sites: Vec<Site>,
-    pub counts: BTreeMap<String, usize>,
+    pub counts: BTreeMap<&'static str, usize>,
 }
 
 /// Scans every graph of the model (main, subgraphs, functions).
@@ -55,7 +50,7 @@ pub fn scan(index: &ModelIndex) -> ScanReport {
     }
     let mut counts = BTreeMap::new();
     for s in &sites {
-        *counts.entry(s.kind.clone()).or_insert(0) += 1;
+        *counts.entry(s.kind.id).or_insert(0) += 1;
     }
     ScanReport {
         model: index.model.path().display().to_string(),
@@ -71,7 +66,7 @@ type Cache = HashMap<Vec<u64>, Option<Identified>, foldhash::fast::RandomState>;
 #[derive(Debug, Clone)]
 struct Identified {
     kind: &'static Kind,
-    params: Vec<ParamValue>,
+    params: Params,
 }
 
 struct GraphScan<'a, 'm> {
@@ -161,10 +156,11 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     fn site_ending_at(&mut self, n: usize) -> Option<Site> {
         let node = &self.graph.nodes[n];
         self.wiring.output(n)?;
+        let fused_op = catalog::is_fused_op(node.domain(), node.op_type());
         if self.ops[n].is_some() {
             let chains = self.chains(n);
             for (input, nodes) in chains.iter().rev() {
-                if nodes.len() == 1 && fused::is_fused_op(node) {
+                if nodes.len() == 1 && fused_op {
                     break;
                 }
                 if let Some(site) = self.decomposed(*input, nodes) {
@@ -172,7 +168,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 }
             }
         }
-        if fused::is_fused_op(node) {
+        if fused_op {
             return self.fused(n);
         }
         None
@@ -230,26 +226,16 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         let found = match self.cache.get(&key) {
             Some(r) => r.clone(),
             None => {
-                let r = identify(&expr);
+                let r = catalog::identify_channels(&|x, c| expr.eval(x, c), expr.channels, None)
+                    .map(|(kind, params)| Identified { kind, params });
                 self.cache.insert(key, r.clone());
                 r
             }
         }?;
-        // A slope that varies by channel is PRelu's job: LeakyRelu's alpha is one number.
-        let kind = match found.kind.id {
-            "leaky_relu" if matches!(found.params[0], ParamValue::PerChannel(_)) => {
-                catalog::get("prelu").expect("catalogue kind")
-            }
-            _ => found.kind,
-        };
+        // The cache key holds the constants' values, not their dims: the shape is this chain's.
+        let params = Params::new(found.params.values().to_vec(), expr.channel_shape.clone());
         let input = self.wiring.name(input);
-        let mut site = self.site(nodes, input, kind, found.params, Form::Decomposed);
-        site.param_shape = expr.channel_shape.clone().filter(|_| {
-            site.params
-                .values()
-                .any(|p| matches!(p, ParamValue::PerChannel(_)))
-        });
-        Some(site)
+        Some(self.site(nodes, input, found.kind, Some(params), Spelling::Decomposed))
     }
 
     fn compile(&mut self, input: u32, nodes: &[usize]) -> Option<Expr> {
@@ -312,17 +298,20 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             .map(|k| self.constant_id(self.wiring.inputs(n)[k]))
             .collect();
         let constant = |i: usize| {
-            values.get(i).cloned().flatten().map(|c| fused::ConstInput {
+            values.get(i).cloned().flatten().map(|c| ConstInput {
                 values: c.values.clone(),
                 dims: c.dims.clone(),
             })
         };
-        let f = fused::classify(node, opset, &constant)?;
+        let (kind, reading) = catalog::read_fused(&FusedNode {
+            node,
+            opset,
+            constant: &constant,
+        })?;
         let input = node.input.first().cloned().unwrap_or_default();
-        let mut site = self.site(&[n], &input, f.kind, f.params, Form::Fused);
-        site.param_shape = f.param_shape;
-        site.notes.extend(f.notes);
-        site.rewritable &= f.rewritable;
+        let mut site = self.site(&[n], &input, kind, reading.params, Spelling::Fused);
+        site.notes.extend(reading.notes);
+        site.rewritable &= reading.rewritable;
         if !matches!(node.domain(), "" | "ai.onnx") {
             site.domain = Some(node.domain().to_string());
         }
@@ -335,8 +324,8 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         nodes: &[usize],
         input: &str,
         kind: &'static Kind,
-        params: Vec<ParamValue>,
-        form: Form,
+        params: Option<Params>,
+        spelling: Spelling,
     ) -> Site {
         let graph = self.graph;
         let last = *nodes.last().expect("non-empty chain");
@@ -387,17 +376,12 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 }
             }
         }
+        let elem_type = self.elem_type(input, &constants);
         Site {
             id: String::new(),
-            kind: kind.id.to_string(),
-            params: kind
-                .params
-                .iter()
-                .zip(params)
-                .map(|(p, v)| (p.name.to_string(), v))
-                .collect(),
-            param_shape: None,
-            form,
+            kind,
+            params,
+            spelling,
             domain: None,
             ops: nodes
                 .iter()
@@ -410,78 +394,44 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             graph: graph.path.clone(),
             rewritable,
             notes,
+            elem_type,
+            opset: graph.opset("").unwrap_or(1),
             graph_index: self.g,
             node_indices: nodes.to_vec(),
         }
+    }
+
+    /// The element type of a site's input: declared, else that of its float constants, else
+    /// float32.
+    fn elem_type(&self, input: &str, constants: &[String]) -> DataType {
+        let declared = self
+            .graph
+            .value_info(input)
+            .and_then(|v| v.r#type.as_ref())
+            .and_then(|t| t.tensor_type.as_ref())
+            .and_then(|t| t.elem_type)
+            .and_then(|c| DataType::try_from(c).ok());
+        declared
+            .or_else(|| {
+                constants
+                    .iter()
+                    .find_map(|c| self.index.constant(self.g, c))
+                    .map(|v| v.data_type)
+                    .filter(|t| {
+                        matches!(
+                            t,
+                            DataType::Float
+                                | DataType::Float16
+                                | DataType::Double
+                                | DataType::Bfloat16
+                        )
+                    })
+            })
+            .unwrap_or(DataType::Float)
     }
 }
 
 /// Dims without their 1s, so `[1, C, 1, 1]` and `[C, 1, 1]` compare equal.
 fn squeeze(dims: &[usize]) -> Vec<usize> {
     dims.iter().copied().filter(|&d| d != 1).collect()
-}
-
-/// Identifies a compiled chain, per channel when its constants are per channel.
-fn identify(expr: &Expr) -> Option<Identified> {
-    let per_channel: Vec<(&'static Kind, Vec<f64>)> = (0..expr.channels)
-        .map(|c| identify_channel(&|x| expr.eval(x, c), None))
-        .collect::<Option<_>>()?;
-    let first = per_channel[0].0;
-    let chosen: Vec<Vec<f64>> = if per_channel.iter().all(|(k, _)| k.id == first.id) {
-        per_channel.into_iter().map(|(_, p)| p).collect()
-    } else {
-        // Channels identified as different kinds (say silu where b = 1, swish elsewhere): take
-        // the first kind with per-channel parameters that fits every channel.
-        let mut kinds: Vec<&'static Kind> = per_channel.iter().map(|(k, _)| *k).collect();
-        kinds.dedup_by_key(|k| k.id);
-        let general = kinds
-            .into_iter()
-            .filter(|k| k.params.iter().any(|p| p.per_channel))
-            .find_map(|k| {
-                (0..expr.channels)
-                    .map(|c| identify_channel(&|x| expr.eval(x, c), Some(k)).map(|(_, p)| p))
-                    .collect::<Option<Vec<_>>>()
-                    .map(|ps| (k, ps))
-            })?;
-        return Some(Identified {
-            kind: general.0,
-            params: merge_channels(general.0, general.1),
-        });
-    };
-    Some(Identified {
-        kind: first,
-        params: merge_channels(first, chosen),
-    })
-}
-
-/// Parameter values across channels: a scalar when all channels agree.
-fn merge_channels(kind: &Kind, per_channel: Vec<Vec<f64>>) -> Vec<ParamValue> {
-    (0..kind.params.len())
-        .map(|i| {
-            let vals: Vec<f64> = per_channel.iter().map(|p| p[i]).collect();
-            if vals.iter().all(|v| *v == vals[0]) {
-                ParamValue::Scalar(vals[0])
-            } else {
-                ParamValue::PerChannel(vals)
-            }
-        })
-        .collect()
-}
-
-/// The first catalogue kind (or `only`) that fits `f`: quick probes first, then the catalogue's
-/// full probe set.
-fn identify_channel(
-    f: &dyn Fn(f64) -> f64,
-    only: Option<&'static Kind>,
-) -> Option<(&'static Kind, Vec<f64>)> {
-    let candidates: Vec<&'static Kind> = match only {
-        Some(k) => vec![k],
-        None => catalog::all().to_vec(),
-    };
-    candidates.into_iter().find_map(|kind| {
-        let params = (kind.recover)(f)?;
-        (catalog::matches(kind, f, &params, QUICK_PROBES)
-            && catalog::matches(kind, f, &params, catalog::probe_points()))
-        .then_some((kind, params))
-    })
 }

@@ -1,21 +1,15 @@
-//! An activation site: data that every later stage (plan, rewrite, measure, report) takes as is.
+//! An activation site: typed data that every later stage (plan, rewrite, measure, report) takes
+//! as is, without going back to the graph.
 
-use std::collections::BTreeMap;
+use serde::{Serialize, Serializer};
 
-use serde::Serialize;
-
-/// A parameter value: one number, or one per channel.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-#[serde(untagged)]
-pub enum ParamValue {
-    Scalar(f64),
-    PerChannel(Vec<f64>),
-}
+use crate::catalog::{Kind, NamedParams, ParamValue, Params};
+use crate::onnx::proto::tensor_proto::DataType;
 
 /// How the site is spelled in the graph.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
-pub enum Form {
+pub enum Spelling {
     /// One node of an op that computes the kind.
     Fused,
     /// A chain of element-wise primitive ops.
@@ -23,20 +17,16 @@ pub enum Form {
 }
 
 /// One activation found in a model.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone)]
 pub struct Site {
     /// Stable id: `s<N>`, numbered in graph order, then node order.
     pub id: String,
-    /// Catalogue kind id.
-    pub kind: String,
-    /// Parameters by catalogue name, at full precision.
-    pub params: BTreeMap<String, ParamValue>,
-    /// Shape of the constant per-channel parameters come from (e.g. `[1, 16, 1, 1]`).
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub param_shape: Option<Vec<usize>>,
-    pub form: Form,
+    pub kind: &'static Kind,
+    /// Parameters in the kind's order, at full precision; `None` when one is only known at run
+    /// time.
+    pub params: Option<Params>,
+    pub spelling: Spelling,
     /// Domain of the fused op when it is not the default ONNX domain (e.g. `com.microsoft`).
-    #[serde(skip_serializing_if = "Option::is_none")]
     pub domain: Option<String>,
     /// Op types of the site's compute nodes, in topological order.
     pub ops: Vec<String>,
@@ -53,10 +43,69 @@ pub struct Site {
     /// Whether the site can be replaced without changing anything else in the graph.
     pub rewritable: bool,
     pub notes: Vec<String>,
-    /// Index of the graph in `ModelIndex::graphs` (not serialized).
-    #[serde(skip)]
+    /// Element type of the input: declared, else that of the site's float constants, else
+    /// float32.
+    pub elem_type: DataType,
+    /// The default-domain opset of the site's graph.
+    pub opset: i64,
+    /// Index of the graph in `ModelIndex::graphs`.
     pub graph_index: usize,
-    /// Indices of the compute nodes in their graph's node list (not serialized).
-    #[serde(skip)]
+    /// Indices of the compute nodes in their graph's node list.
     pub node_indices: Vec<usize>,
+}
+
+impl Site {
+    /// The value of the parameter called `name`, when known.
+    pub fn param(&self, name: &str) -> Option<&ParamValue> {
+        let i = self.kind.param_index(name)?;
+        self.params.as_ref().map(|p| &p.values()[i])
+    }
+
+    /// The parameters as `{name: value}` (`{}` when unknown).
+    pub fn named_params(&self) -> NamedParams<'_> {
+        NamedParams::of(self.kind.params, self.params.as_ref())
+    }
+}
+
+/// The scan JSON of a site (the stable schema of `actswap scan --json`).
+#[derive(Serialize)]
+struct SiteJson<'a> {
+    id: &'a str,
+    kind: &'static str,
+    params: NamedParams<'a>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    param_shape: Option<&'a [usize]>,
+    form: Spelling,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    domain: Option<&'a str>,
+    ops: &'a [String],
+    nodes: &'a [String],
+    constants: &'a [String],
+    input: &'a str,
+    output: &'a str,
+    graph: &'a str,
+    rewritable: bool,
+    notes: &'a [String],
+}
+
+impl Serialize for Site {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        SiteJson {
+            id: &self.id,
+            kind: self.kind.id,
+            params: self.named_params(),
+            param_shape: self.params.as_ref().and_then(Params::shape),
+            form: self.spelling,
+            domain: self.domain.as_deref(),
+            ops: &self.ops,
+            nodes: &self.nodes,
+            constants: &self.constants,
+            input: &self.input,
+            output: &self.output,
+            graph: &self.graph,
+            rewritable: self.rewritable,
+            notes: &self.notes,
+        }
+        .serialize(s)
+    }
 }

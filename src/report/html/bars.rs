@@ -2,7 +2,7 @@
 //! per item, and the label of a site.
 
 use super::svg::{Anchor, Svg};
-use crate::measure::report::SiteDrift;
+use crate::measure::result::SiteDrift;
 
 /// Width of a bar chart, in SVG units.
 pub const WIDTH: f64 = 1100.0;
@@ -75,9 +75,9 @@ pub fn site_label(s: &SiteDrift) -> String {
     } else {
         format!("{}/{}", s.id_a, s.id_b)
     };
-    if s.kind_a == s.kind_b {
-        format!("{id}  {}", s.kind_a)
+    if s.kind_a.id == s.kind_b.id {
+        format!("{id}  {}", s.kind_a.id)
     } else {
-        format!("{id}  {} → {}", s.kind_a, s.kind_b)
+        format!("{id}  {} → {}", s.kind_a.id, s.kind_b.id)
     }
 }

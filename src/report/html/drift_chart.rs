@@ -9,7 +9,7 @@ use super::scale::{Log10, decade_label, minus};
 use super::svg::{Anchor, Svg};
 use crate::measure::DriftReport;
 use crate::measure::metrics::Drift;
-use crate::measure::report::{LocalBasis, SiteDrift};
+use crate::measure::result::{LocalBasis, SiteDrift};
 
 const ROW_H: f64 = 34.0;
 const BAR_H: f64 = 11.0;

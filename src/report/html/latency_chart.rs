@@ -5,7 +5,7 @@ use super::bars::{Layout, WIDTH, site_label};
 use super::markup::{full, short};
 use super::svg::{Anchor, Svg};
 use crate::measure::DriftReport;
-use crate::measure::report::SiteDrift;
+use crate::measure::result::SiteDrift;
 
 const ROW_H: f64 = 24.0;
 const BAR_H: f64 = 13.0;

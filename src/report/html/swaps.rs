@@ -7,12 +7,9 @@
 //! the figures agree. Per-channel parameters are plotted for one channel: the one with the
 //! largest worst-case error over the range, as the drift report's bound takes it.
 
-use std::collections::BTreeMap;
-
 use crate::catalog::substitute::{self, ErrorBound};
-use crate::catalog::{self, Kind};
-use crate::measure::report::SiteDrift;
-use crate::scan::ParamValue;
+use crate::catalog::{Kind, Params};
+use crate::measure::result::SiteDrift;
 
 /// Points per curve, evenly spaced over the plotted range, ends included.
 pub const CURVE_POINTS: usize = 241;
@@ -53,7 +50,7 @@ pub struct Curves {
 pub fn swaps<'a>(sites: &[&'a SiteDrift]) -> Vec<Swap<'a>> {
     let mut groups: Vec<Vec<&'a SiteDrift>> = Vec::new();
     for &s in sites {
-        if s.kind_a == s.kind_b && s.params_a == s.params_b {
+        if s.kind_a.id == s.kind_b.id && s.params_a == s.params_b {
             continue;
         }
         match groups.iter_mut().find(|g| same_swap(g[0], s)) {
@@ -71,17 +68,18 @@ pub fn swaps<'a>(sites: &[&'a SiteDrift]) -> Vec<Swap<'a>> {
 }
 
 fn same_swap(x: &SiteDrift, y: &SiteDrift) -> bool {
-    x.kind_a == y.kind_a
+    x.kind_a.id == y.kind_a.id
         && x.params_a == y.params_a
-        && x.kind_b == y.kind_b
+        && x.kind_b.id == y.kind_b.id
         && x.params_b == y.params_b
 }
 
 fn curves(sites: &[&SiteDrift]) -> Result<Curves, String> {
     let s = sites[0];
-    let kind =
-        |id: &str| catalog::get(id).ok_or_else(|| format!("no catalogue formula for '{id}'"));
-    let (kind_a, kind_b) = (kind(&s.kind_a)?, kind(&s.kind_b)?);
+    let (kind_a, kind_b) = (s.kind_a, s.kind_b);
+    let (Some(pa), Some(pb)) = (&s.params_a, &s.params_b) else {
+        return Err("a parameter is only known at run time".into());
+    };
     let ranges: Vec<_> = sites.iter().filter_map(|s| s.input_range).collect();
     if ranges.is_empty() {
         return Err("no input range was observed at these sites".into());
@@ -91,20 +89,10 @@ fn curves(sites: &[&SiteDrift]) -> Result<Curves, String> {
     };
     let observed = (fold(|r| r.min, f64::min), fold(|r| r.max, f64::max));
     let band = (fold(|r| r.p01, f64::min), fold(|r| r.p99, f64::max));
-    let channels = channel_count(&s.params_a, &s.params_b)?;
-    let mut best: Option<(usize, Vec<f64>, Vec<f64>, ErrorBound)> = None;
-    for c in 0..channels.unwrap_or(1) {
-        let pa = params(kind_a, &s.params_a, c);
-        let pb = params(kind_b, &s.params_b, c);
-        let worst = substitute::max_abs_error((kind_a, &pa), (kind_b, &pb), observed.0, observed.1);
-        if best
-            .as_ref()
-            .is_none_or(|b| worst.value > b.3.value || worst.value.is_nan())
-        {
-            best = Some((c, pa, pb, worst));
-        }
-    }
-    let (c, params_a, params_b, worst) = best.expect("at least one channel");
+    let (worst, c) =
+        substitute::max_abs_error_per_channel((kind_a, pa), (kind_b, pb), observed.0, observed.1)?;
+    let channels = pa.channels().max(pb.channels());
+    let (params_a, params_b) = (channel(pa, c), channel(pb, c));
     let plotted = widen(observed);
     let x: Vec<f64> = (0..CURVE_POINTS)
         .map(|i| plotted.0 + (plotted.1 - plotted.0) * i as f64 / (CURVE_POINTS - 1) as f64)
@@ -117,7 +105,7 @@ fn curves(sites: &[&SiteDrift]) -> Result<Curves, String> {
         kind_b,
         params_a,
         params_b,
-        channel: channels.map(|n| (c, n)),
+        channel: (channels > 1).then_some((c, channels)),
         observed,
         band,
         plotted,
@@ -129,37 +117,9 @@ fn curves(sites: &[&SiteDrift]) -> Result<Curves, String> {
     })
 }
 
-/// The number of channels when a parameter is per channel (both sides must agree).
-fn channel_count(
-    a: &BTreeMap<String, ParamValue>,
-    b: &BTreeMap<String, ParamValue>,
-) -> Result<Option<usize>, String> {
-    let count = |p: &BTreeMap<String, ParamValue>| {
-        p.values()
-            .filter_map(|v| match v {
-                ParamValue::PerChannel(c) => Some(c.len()),
-                ParamValue::Scalar(_) => None,
-            })
-            .max()
-    };
-    match (count(a), count(b)) {
-        (Some(x), Some(y)) if x != y => Err(format!(
-            "{x} channels in the original, {y} in the replacement"
-        )),
-        (x, y) => Ok(x.or(y)),
-    }
-}
-
-/// A site's parameters for channel `c`, in the kind's order (spec defaults where absent).
-fn params(kind: &Kind, values: &BTreeMap<String, ParamValue>, c: usize) -> Vec<f64> {
-    kind.params
-        .iter()
-        .map(|p| match values.get(p.name) {
-            Some(ParamValue::Scalar(v)) => *v,
-            Some(ParamValue::PerChannel(vs)) => vs.get(c).copied().unwrap_or(f64::NAN),
-            None => p.default,
-        })
-        .collect()
+/// Channel `c`'s parameters (a side without per-channel values has one channel).
+fn channel(p: &Params, c: usize) -> Vec<f64> {
+    p.channel(c.min(p.channels() - 1))
 }
 
 /// The observed range, or around it when it is (nearly) one point: by a quarter of its size
@@ -185,11 +145,11 @@ mod tests {
             id_b: id.into(),
             output: format!("{id}.out"),
             graph: "main".into(),
-            kind_a: from.into(),
-            params_a: BTreeMap::new(),
+            kind_a: crate::catalog::get(from).unwrap(),
+            params_a: Some(Params::scalars(&[])),
             ops_a: vec![],
-            kind_b: to.into(),
-            params_b: BTreeMap::new(),
+            kind_b: crate::catalog::get(to).unwrap(),
+            params_b: Some(Params::scalars(&[])),
             ops_b: vec![],
             local: None,
             local_basis: None,

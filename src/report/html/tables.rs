@@ -1,16 +1,15 @@
 //! The report's tables: sites (plan and drift side by side), outputs, and the overview of many
 //! models. Every figure is short in the cell and full in its tooltip.
 
-use std::collections::BTreeMap;
 use std::fmt::Write;
 
 use super::markup::{dash, esc, fig, opt_fig, percent, ratio};
+use crate::audit::ModelSummary;
+use crate::catalog::{Kind, NamedParams, Params};
 use crate::measure::DriftReport;
-use crate::measure::report::{LocalBasis, SiteDrift};
+use crate::measure::result::{LocalBasis, SiteDrift};
 use crate::plan::{Action, Planned};
 use crate::report::drift_table::kind;
-use crate::report::summary::ModelSummary;
-use crate::scan::ParamValue;
 
 /// A site as the plan and the drift report see it; either may be missing.
 pub struct SiteRow<'a> {
@@ -215,39 +214,34 @@ pub fn overview(rows: &[(String, String, Option<ModelSummary>)]) -> String {
 
 /// `swish(beta=[12 per channel]) → hard_swish`, full parameter values in the tooltip.
 fn kind_cell(r: &SiteRow) -> String {
-    let (a, b) = match (r.drift, r.planned) {
+    type Side<'a> = (&'static Kind, Option<&'a Params>);
+    let (a, b): (Side, Option<Side>) = match (r.drift, r.planned) {
         (Some(d), _) => (
-            (d.kind_a.clone(), d.params_a.clone()),
-            Some((d.kind_b.clone(), d.params_b.clone())),
+            (d.kind_a, d.params_a.as_ref()),
+            Some((d.kind_b, d.params_b.as_ref())),
         ),
         (None, Some(p)) => {
             let to = match &p.action {
-                Action::Rewrite(t) => Some((
-                    t.kind.id.to_string(),
-                    t.kind
-                        .params
-                        .iter()
-                        .zip(&t.params)
-                        .map(|(k, v)| (k.name.to_string(), v.clone()))
-                        .collect(),
-                )),
+                Action::Rewrite(t) => Some((t.kind, Some(&t.params))),
                 _ => None,
             };
-            ((p.site.kind.clone(), p.site.params.clone()), to)
+            ((p.site.kind, p.site.params.as_ref()), to)
         }
         (None, None) => return dash(),
     };
-    let label = |(k, p): &(String, BTreeMap<String, ParamValue>)| {
-        let tip = serde_json::to_string(p).unwrap_or_default();
-        if p.is_empty() {
+    let label = |(k, p): Side| {
+        let named = NamedParams::of(k.params, p);
+        if named.pairs().is_empty() {
             esc(&kind(k, p))
         } else {
+            let tip = serde_json::to_string(&named).unwrap_or_default();
             format!("<span title=\"{}\">{}</span>", esc(&tip), esc(&kind(k, p)))
         }
     };
+    let same = |x: Side, y: Side| x.0.id == y.0.id && x.1 == y.1;
     match b {
-        Some(b) if b != a => format!("{} → {}", label(&a), label(&b)),
-        _ => label(&a),
+        Some(b) if !same(a, b) => format!("{} → {}", label(a), label(b)),
+        _ => label(a),
     }
 }
 
@@ -269,7 +263,7 @@ fn ops_cell(r: &SiteRow) -> String {
         (None, Some(p)) => (
             p.site.ops.join(" "),
             match &p.action {
-                Action::Rewrite(t) => Some(t.ops.join(" ")),
+                Action::Rewrite(t) => Some(t.ops().join(" ")),
                 _ => None,
             },
         ),
@@ -286,7 +280,7 @@ fn bound_cell(r: &SiteRow) -> String {
     if let Some(d) = r.drift
         && let Some((v, at)) = d.bound_over_range.zip(d.bound_at)
     {
-        return if d.kind_a == d.kind_b && d.params_a == d.params_b {
+        return if d.kind_a.id == d.kind_b.id && d.params_a == d.params_b {
             "<span class=\"muted\">exact</span>".into()
         } else {
             format!("{} <span class=\"muted\">at</span> {}", fig(v), fig(at))

@@ -48,15 +48,14 @@
 //! ```
 //! See [`super::metrics`] for the definitions and [`super::budget`] for what offends.
 
-use std::collections::BTreeMap;
-
-use serde::Serialize;
+use serde::{Serialize, Serializer};
 
 use super::budget::{Budgets, Offender};
 use super::latency::{EndToEnd, SiteLatency};
 use super::metrics::{Drift, Tolerance, Top1};
 use super::range::InputRange;
-use crate::scan::ParamValue;
+use crate::catalog::{Kind, NamedParams, Params};
+use crate::scan::Site;
 
 /// Printed with every report.
 pub const CAUTION: &str = "Drift measured on sample inputs certifies nothing: for a model in a \
@@ -81,18 +80,18 @@ pub struct DriftReport {
     pub caution: &'static str,
 }
 
-/// One site found in both models (same output tensor, same graph).
-#[derive(Debug, Clone, Serialize)]
+/// One site and its counterpart (same output tensor, same graph).
+#[derive(Debug, Clone)]
 pub struct SiteDrift {
     pub id_a: String,
     pub id_b: String,
     pub output: String,
     pub graph: String,
-    pub kind_a: String,
-    pub params_a: BTreeMap<String, ParamValue>,
+    pub kind_a: &'static Kind,
+    pub params_a: Option<Params>,
     pub ops_a: Vec<String>,
-    pub kind_b: String,
-    pub params_b: BTreeMap<String, ParamValue>,
+    pub kind_b: &'static Kind,
+    pub params_b: Option<Params>,
     pub ops_b: Vec<String>,
     pub local: Option<Drift>,
     pub local_basis: Option<LocalBasis>,
@@ -103,6 +102,57 @@ pub struct SiteDrift {
     pub bound_at: Option<f64>,
     pub latency: Option<SiteLatency>,
     pub notes: Vec<String>,
+}
+
+/// The JSON of a [`SiteDrift`]: kinds by id, parameters by name.
+#[derive(Serialize)]
+struct SiteDriftJson<'a> {
+    id_a: &'a str,
+    id_b: &'a str,
+    output: &'a str,
+    graph: &'a str,
+    kind_a: &'static str,
+    params_a: NamedParams<'a>,
+    ops_a: &'a [String],
+    kind_b: &'static str,
+    params_b: NamedParams<'a>,
+    ops_b: &'a [String],
+    local: &'a Option<Drift>,
+    local_basis: Option<LocalBasis>,
+    propagated: &'a Option<Drift>,
+    isolation_max_abs: Option<f64>,
+    input_range: Option<InputRange>,
+    bound_over_range: Option<f64>,
+    bound_at: Option<f64>,
+    latency: &'a Option<SiteLatency>,
+    notes: &'a [String],
+}
+
+impl Serialize for SiteDrift {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        SiteDriftJson {
+            id_a: &self.id_a,
+            id_b: &self.id_b,
+            output: &self.output,
+            graph: &self.graph,
+            kind_a: self.kind_a.id,
+            params_a: NamedParams::of(self.kind_a.params, self.params_a.as_ref()),
+            ops_a: &self.ops_a,
+            kind_b: self.kind_b.id,
+            params_b: NamedParams::of(self.kind_b.params, self.params_b.as_ref()),
+            ops_b: &self.ops_b,
+            local: &self.local,
+            local_basis: self.local_basis,
+            propagated: &self.propagated,
+            isolation_max_abs: self.isolation_max_abs,
+            input_range: self.input_range,
+            bound_over_range: self.bound_over_range,
+            bound_at: self.bound_at,
+            latency: &self.latency,
+            notes: &self.notes,
+        }
+        .serialize(s)
+    }
 }
 
 /// How a site's local drift was obtained.
@@ -130,9 +180,27 @@ pub struct UnmatchedSite {
     /// `a` (original) or `b` (rewritten).
     pub model: &'static str,
     pub id: String,
-    pub kind: String,
+    #[serde(serialize_with = "kind_id")]
+    pub kind: &'static Kind,
     pub output: String,
     pub graph: String,
+}
+
+impl UnmatchedSite {
+    /// `site`, found only in model `model` (`a` or `b`).
+    pub fn of(model: &'static str, site: &Site) -> UnmatchedSite {
+        UnmatchedSite {
+            model,
+            id: site.id.clone(),
+            kind: site.kind,
+            output: site.output.clone(),
+            graph: site.graph.clone(),
+        }
+    }
+}
+
+fn kind_id<S: Serializer>(kind: &&'static Kind, s: S) -> Result<S::Ok, S::Error> {
+    s.serialize_str(kind.id)
 }
 
 impl DriftReport {

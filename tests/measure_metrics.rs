@@ -3,17 +3,21 @@
 //! in that script and here. Sums are taken in another order than numpy's pairwise summation, so
 //! mean abs, RMS and cosine are compared to 1e-12 relative; maxima and counts exactly.
 
+mod ladder;
+
 use actswap::measure::metrics::{Top1Accumulator, drift, top1_applies};
 use actswap::measure::range::RangeCollector;
 use actswap::measure::{Drift, Tolerance};
 use ndarray::{ArrayD, IxDyn};
+
+use ladder::Tol;
 
 fn array(values: &[f64]) -> ArrayD<f64> {
     ArrayD::from_shape_vec(IxDyn(&[values.len()]), values.to_vec()).unwrap()
 }
 
 fn close(got: f64, want: f64) -> bool {
-    (got - want).abs() <= 1e-12 * want.abs()
+    Tol::Double.holds(got, want)
 }
 
 fn check(d: &Drift, want: &[(&str, f64)]) {

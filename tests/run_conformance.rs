@@ -5,12 +5,13 @@
 //! `onnx.backend.test.case.node.collect_testcases()`, committed under
 //! `tests/fixtures/conformance/` (override the fixtures root with `ACTSWAP_FIXTURES_DIR`).
 //!
-//! Tolerance: `|got - expected| <= 1e-5 + 1e-5 * |expected|`, i.e. 1e-5 absolute plus 1e-5
-//! relative so that values far above 1 are held to f32 resolution rather than to a fixed 1e-5.
-//! float16 outputs are held to the resolution of float16 instead (2^-10 = 9.8e-4 absolute and
-//! relative, one unit in the last place at 1.0): the expected values are exact float16 roundings
-//! of a float32 computation, and tract computes in float16, so 1e-5 is below what the type can
-//! represent.
+//! Tolerance: the ladder's `Runtimes` rung, `|got - expected| <= 1e-5 + 1e-5 * |expected|`, so
+//! that values far above 1 are held to f32 resolution rather than to a fixed 1e-5. float16
+//! outputs are held to the `Float16` rung instead (2^-10 = 9.8e-4 absolute and relative, one
+//! unit in the last place at 1.0): the expected values are exact float16 roundings of a float32
+//! computation, and tract computes in float16, so 1e-5 is below what the type can represent.
+
+mod ladder;
 
 use std::path::{Path, PathBuf};
 
@@ -20,9 +21,7 @@ use prost::Message;
 use tract_onnx::pb::ModelProto;
 use tract_onnx::prelude::*;
 
-const ATOL: f64 = 1e-5;
-const RTOL: f64 = 1e-5;
-const F16_TOL: f64 = 1.0 / 1024.0;
+use ladder::Tol;
 
 /// Cases tract cannot run, with the reason; the runner must refuse each with an error saying so.
 const UNSUPPORTED: &[(&str, &str)] = &[
@@ -97,10 +96,10 @@ fn compare(got: &NamedTensor, expected: &NamedTensor) -> Option<String> {
     if gt == DatumType::Bool || gt == DatumType::String {
         return (got.tensor != expected.tensor).then(|| "values differ".to_string());
     }
-    let (atol, rtol) = if gt == DatumType::F16 {
-        (F16_TOL, F16_TOL)
+    let tol = if gt == DatumType::F16 {
+        Tol::Float16
     } else {
-        (ATOL, RTOL)
+        Tol::Runtimes
     };
     let g = match to_f64_array(&got.name, &got.tensor) {
         Ok(g) => g,
@@ -115,7 +114,7 @@ fn compare(got: &NamedTensor, expected: &NamedTensor) -> Option<String> {
     for (&a, &b) in g.iter().zip(e.iter()) {
         let same = (a.is_nan() && b.is_nan()) || a == b;
         let err = (a - b).abs();
-        let fails = !same && (err.is_nan() || err > atol + rtol * b.abs());
+        let fails = !same && (err.is_nan() || err > tol.bound(0.0, b));
         if fails {
             count += 1;
             if worst.is_none_or(|w| err > w.0) {
@@ -235,13 +234,10 @@ fn check_against_body(fused: ModelProto, body: ModelProto, formula: impl Fn(f64)
     for ((&x, &g), &r) in xs.iter().zip(&got).zip(&reference) {
         let f = formula(x as f64);
         assert!(
-            (g - r).abs() <= ATOL + RTOL * r.abs(),
+            Tol::Runtimes.holds(g, r),
             "x={x}: fused {g}, function body {r}"
         );
-        assert!(
-            (g - f).abs() <= ATOL + RTOL * f.abs(),
-            "x={x}: fused {g}, formula {f}"
-        );
+        assert!(Tol::Runtimes.holds(g, f), "x={x}: fused {g}, formula {f}");
     }
     let stock = tract_onnx::onnx()
         .model_for_read(&mut with_symbolic_input(fused).encode_to_vec().as_slice())

@@ -7,8 +7,11 @@
 //! disabled), from the inputs in `inputs.npz`. Fixtures live under `tests/fixtures/torch/`
 //! (override the fixtures root with `ACTSWAP_FIXTURES_DIR`).
 //!
-//! Tolerance: 1e-5 absolute plus 1e-5 relative, as for the conformance cases; two runtimes
-//! summing convolutions and matrix products in different orders differ by a few f32 ulps.
+//! Tolerance: the ladder's `Runtimes` rung (1e-5 absolute plus 1e-5 relative), as for the
+//! conformance cases; two runtimes summing convolutions and matrix products in different orders
+//! differ by a few f32 ulps.
+
+mod ladder;
 
 use std::path::{Path, PathBuf};
 
@@ -17,8 +20,7 @@ use actswap::run::{NamedTensor, prepare};
 use ndarray::ArrayD;
 use ndarray_npy::NpzReader;
 
-const ATOL: f64 = 1e-5;
-const RTOL: f64 = 1e-5;
+use ladder::Tol;
 
 fn fixtures_root() -> PathBuf {
     match std::env::var_os("ACTSWAP_FIXTURES_DIR") {
@@ -52,7 +54,7 @@ fn worst_error(got: &NamedTensor, expected: &ArrayD<f64>) -> Result<f64, String>
     let mut worst = 0.0f64;
     for (&g, &e) in got.iter().zip(expected.iter()) {
         let err = (g - e).abs();
-        if err.is_nan() || err > ATOL + RTOL * e.abs() {
+        if err.is_nan() || err > Tol::Runtimes.bound(0.0, e) {
             return Err(format!("got {g}, expected {e}"));
         }
         worst = worst.max(err);

@@ -3,12 +3,15 @@
 //! exported by torch 2.15 with both exporters, whose true sites the fixture script recorded by
 //! walking the exported graph and checking each against the f64 formula on onnxruntime values.
 
+mod ladder;
+
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
 use actswap::catalog::ParamValue;
 use actswap::onnx::{Model, ModelIndex};
 use actswap::scan::{self, ScanReport};
+use ladder::Tol;
 use serde_json::Value;
 
 fn root() -> PathBuf {
@@ -25,8 +28,8 @@ fn scan_file(path: &Path) -> ScanReport {
     scan::scan(&index)
 }
 
-fn close(got: f64, want: f64, rel: f64) -> bool {
-    got == want || (got - want).abs() <= rel * want.abs().max(1e-30)
+fn close(got: f64, want: f64, tol: Tol) -> bool {
+    got == want || tol.holds(got, want)
 }
 
 /// The catalogue kind and parameters an ONNX op computes with the given attributes (ONNX
@@ -132,7 +135,10 @@ fn conformance_cases_are_identified() {
             };
             // Fused attributes are read exactly; expanded bodies hold the same float32 (or
             // float16) constants, recovered numerically.
-            assert!(close(got, want, 1e-6), "{name}: {p} = {got}, want {want}");
+            assert!(
+                close(got, want, Tol::Attribute),
+                "{name}: {p} = {got}, want {want}"
+            );
         }
         checked += 1;
     }
@@ -141,16 +147,16 @@ fn conformance_cases_are_identified() {
 
 fn param_matches(got: &ParamValue, want: &Value) -> bool {
     match (got, want) {
-        (ParamValue::Scalar(g), Value::Number(w)) => close(*g, w.as_f64().unwrap(), 1e-5),
+        (ParamValue::Scalar(g), Value::Number(w)) => close(*g, w.as_f64().unwrap(), Tol::Recovered),
         (ParamValue::PerChannel(g), Value::Array(w)) => {
             g.len() == w.len()
                 && g.iter()
                     .zip(w)
-                    .all(|(g, w)| close(*g, w.as_f64().unwrap(), 1e-5))
+                    .all(|(g, w)| close(*g, w.as_f64().unwrap(), Tol::Recovered))
         }
-        (ParamValue::Scalar(g), Value::Array(w)) => {
-            w.iter().all(|w| close(*g, w.as_f64().unwrap(), 1e-5))
-        }
+        (ParamValue::Scalar(g), Value::Array(w)) => w
+            .iter()
+            .all(|w| close(*g, w.as_f64().unwrap(), Tol::Recovered)),
         _ => false,
     }
 }

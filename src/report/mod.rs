@@ -1,5 +1,6 @@
-//! Rendering results for people: terminal tables, the HTML report and per-model summaries (JSON
-//! comes straight from the serde types).
+//! Rendering results for people: terminal tables, Markdown and the HTML report. Rendering only:
+//! the figures and the verdict come from [`crate::audit`] and [`crate::measure`], and JSON comes
+//! straight from their serde types.
 
 pub mod batch_table;
 pub mod drift_table;

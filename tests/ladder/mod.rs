@@ -10,13 +10,22 @@ pub const TRACT_SATURATION: f64 = 6.1e-7;
 /// How close a value at `x` must be to the reference `r` (both f64).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Tol {
+    /// Equal to `r` bit for bit (f64): one formula evaluated two ways that must agree exactly.
+    Identical,
     /// Equal to `r` rounded to float32: one correctly rounded operation away from the formula.
     Exact,
     /// Within 1e-12 relative: two f64 evaluations of one formula (a few dozen f64 roundings,
     /// 2^-53 = 1.1e-16 each, and the cancellation of a difference).
     Double,
-    /// Within `10^-n` absolute: a check value printed by its source with `n` decimals.
-    Printed(i32),
+    /// Within `10^-n` absolute: a value known to `n` decimals (a check value its source prints
+    /// with `n` decimals, or two double-precision evaluations of one identity).
+    Digits(i32),
+    /// Within 1e-6 relative: a float32 attribute or constant against the decimal its source
+    /// writes (float32 keeps 24 bits, 6e-8 relative, a few roundings more in a computed one).
+    Attribute,
+    /// Within 1e-5 relative: a parameter recovered numerically from a chain of float32
+    /// constants, against the value the exporter was given.
+    Recovered,
     /// Within 1e-6 * (1 + |r|): a few float32 roundings (2^-24 = 6e-8 each).
     Close,
     /// Within 1e-5 * (1 + |r|): a runtime op's approximation error a little above Close.
@@ -27,6 +36,11 @@ pub enum Tol {
     /// Within 1e-4 * (1 + |r|): one model run end to end by two runtimes through many layers
     /// (attention, normalisation), where float32 rounding accumulates.
     Layers,
+    /// Within a bound the test derives from the formula itself, and says how (a Taylor term,
+    /// half a unit of a check value's last printed decimal).
+    Derived(f64),
+    /// Within 2^-10 + 2^-10 * |r|: float16 values, one unit in the last place at 1.0.
+    Float16,
     /// Close plus |x| * [`TRACT_SATURATION`]: a form that multiplies x by a factor saturating
     /// to 0 (x * sigmoid(b x), 0.5 x (1 + tanh z)), run on a runtime whose sigmoid or tanh
     /// stops short of saturating. Unbounded as x grows: it says only that the error is that
@@ -38,13 +52,17 @@ impl Tol {
     /// The largest |got - r| allowed at `x`.
     pub fn bound(self, x: f64, r: f64) -> f64 {
         match self {
-            Tol::Exact => 0.0,
+            Tol::Identical | Tol::Exact => 0.0,
+            Tol::Derived(bound) => bound,
             Tol::Double => 1e-12 * r.abs(),
-            Tol::Printed(n) => 10f64.powi(-n),
+            Tol::Digits(n) => 10f64.powi(-n),
+            Tol::Attribute => 1e-6 * r.abs().max(1e-30),
+            Tol::Recovered => 1e-5 * r.abs().max(1e-30),
             Tol::Close => 1e-6 * (1.0 + r.abs()),
             Tol::Approx => 1e-5 * (1.0 + r.abs()),
             Tol::Runtimes => 1e-5 + 1e-5 * r.abs(),
             Tol::Layers => 1e-4 * (1.0 + r.abs()),
+            Tol::Float16 => (1.0 + r.abs()) / 1024.0,
             Tol::TailFloor => 1e-6 * (1.0 + r.abs()) + x.abs() * TRACT_SATURATION,
         }
     }
@@ -52,7 +70,15 @@ impl Tol {
     /// True for the rungs of float32 values: the reference is compared as float32 stores it
     /// where it must be exact or is beyond float32's range.
     fn float32(self) -> bool {
-        !matches!(self, Tol::Double | Tol::Printed(_))
+        !matches!(
+            self,
+            Tol::Identical
+                | Tol::Double
+                | Tol::Digits(_)
+                | Tol::Attribute
+                | Tol::Recovered
+                | Tol::Derived(_)
+        )
     }
 
     /// None when `got` passes at `x`, else what is wrong. NaN never passes; a reference beyond
@@ -62,7 +88,7 @@ impl Tol {
         if got.is_nan() {
             return Some(format!("NaN where the reference is {r:e}"));
         }
-        if typed.is_infinite() || got.is_infinite() || self == Tol::Exact {
+        if typed.is_infinite() || got.is_infinite() || matches!(self, Tol::Exact | Tol::Identical) {
             return (got != typed).then(|| format!("{got:e}, want {typed:e} exactly"));
         }
         let err = (got - r).abs();

@@ -99,8 +99,9 @@ fn cases() -> Vec<Case> {
         case("hard_sigmoid",     Primitive, vec![s(0.2), s(0.5)],   Close,  Tract, "alpha * x + beta rounds twice"),
         case("hard_sigmoid",     Fused,     vec![s(1.0 / 6.0), s(0.5)], Close, Tract, "PyTorch's slope; two roundings"),
         case("hard_sigmoid",     Primitive, vec![s(1.0 / 6.0), s(0.5)], Close, Tract, "PyTorch's slope; two roundings"),
-        overflowing(case("hard_swish", Fused, vec![],              Close,  Tract, "float32 1/6 and three roundings; tract's HardSwish kernel overflows above f32::MAX / 6"), f32::MAX / 6.0),
-        case("hard_swish",       Primitive, vec![],                 Close,  Tract, "float32 1/6 and three roundings"),
+        overflowing(case("hard_swish", Fused, vec![s(1.0)],        Close,  Tract, "float32 1/6 and three roundings; tract's HardSwish kernel overflows above f32::MAX / 6"), f32::MAX / 6.0),
+        case("hard_swish",       Primitive, vec![s(1.0)],           Close,  Tract, "float32 1/6 and three roundings"),
+        case("hard_swish",       Primitive, vec![per_channel([0.5, 1.0, 1.702])], Close, Tract, "per channel: beta / 6 rounded to float32, three roundings"),
         case("elu",              Fused,     vec![s(0.7)],           Close,  Tract, "exp(x) - 1 cancels near 0: absolute error ~alpha * 6e-8"),
         case("elu",              Primitive, vec![s(0.7)],           Close,  Tract, "exp(x) - 1 cancels near 0: absolute error ~alpha * 6e-8"),
         case("selu",             Fused,     SELU.map(s).to_vec(),   Close,  Tract, "as elu, scaled by gamma"),
@@ -545,7 +546,7 @@ fn check_values_from_the_sources() {
         ("gelu_tanh", &[], 1.0, 0.8411919906082768),
         ("mish", &[], 1.0, 0.8650983882673103),
         ("mish", &[], -1.0, -0.3034014613741089),
-        ("hard_swish", &[], 1.0, 2.0 / 3.0),
+        ("hard_swish", &[1.0], 1.0, 2.0 / 3.0),
         ("softplus", &[], 0.0, std::f64::consts::LN_2),
         ("elu", &[1.0], -1.0, -0.6321205588285577),
         ("selu", &SELU, -1.0, -1.1113307378125625),
@@ -791,7 +792,7 @@ fn constants_take_the_element_type_of_the_input() {
                 vec![per_channel([0.5, 1.0, 1.702])],
             ),
             ("clip", Form::Fused, vec![s(-1.5), s(2.5)]),
-            ("hard_swish", Form::Primitive, vec![]),
+            ("hard_swish", Form::Primitive, vec![s(1.0)]),
             ("celu", Form::Primitive, vec![s(1.5)]),
         ] {
             let e = emit(kind(id), form, &ctx(&args, elem, NEWEST_OPSET)).unwrap();
@@ -844,7 +845,7 @@ fn float16_and_double_sites_run_in_their_own_type() {
     for (id, form, params, types) in [
         ("gelu", Form::Primitive, vec![], &both[..1]),
         ("swish", Form::Primitive, vec![1.702], &both[..1]),
-        ("hard_swish", Form::Primitive, vec![], &both[..]),
+        ("hard_swish", Form::Primitive, vec![1.0], &both[..]),
         ("softplus", Form::Primitive, vec![], &both[..]),
         ("mish", Form::Primitive, vec![], &both[..]),
         ("elu", Form::Fused, vec![0.7], &both[..1]),

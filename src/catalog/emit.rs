@@ -384,14 +384,21 @@ impl<'c> Builder<'c> {
     /// Parameter `index` as an initializer `{prefix}.c.{role}`: shape `[]` for a scalar, the
     /// site's dims for a per-channel value; returns its name.
     pub fn param(&mut self, index: usize, role: &str) -> String {
+        self.param_map(index, role, |v| v)
+    }
+
+    /// Parameter `index` mapped value by value through `f`, as an initializer like
+    /// [`Builder::param`]'s.
+    pub fn param_map(&mut self, index: usize, role: &str, f: fn(f64) -> f64) -> String {
         match &self.ctx.params.values()[index] {
-            ParamValue::Scalar(v) => self.initializer(role, &[], &[*v]),
+            ParamValue::Scalar(v) => self.initializer(role, &[], &[f(*v)]),
             ParamValue::PerChannel(values) => {
                 let dims: Vec<i64> = match self.ctx.params.shape() {
                     Some(d) => d.iter().map(|&d| d as i64).collect(),
                     None => vec![values.len() as i64],
                 };
-                self.initializer(role, &dims, values)
+                let mapped: Vec<f64> = values.iter().map(|&v| f(v)).collect();
+                self.initializer(role, &dims, &mapped)
             }
         }
     }

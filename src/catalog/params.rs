@@ -134,6 +134,19 @@ impl Params {
             .collect()
     }
 
+    /// True when both have the same channel count and every value agrees within `rtol`
+    /// relative (absolute below 1).
+    pub fn agrees_with(&self, other: &Params, rtol: f64) -> bool {
+        self.len() == other.len()
+            && self.channels() == other.channels()
+            && (0..self.channels()).all(|c| {
+                self.channel(c)
+                    .iter()
+                    .zip(other.channel(c))
+                    .all(|(a, b)| a == &b || (a - b).abs() <= rtol * a.abs().max(b.abs()).max(1.0))
+            })
+    }
+
     /// The values as a map from the parameter names of `declared` (the kind's), for JSON.
     pub fn named<'a>(&'a self, declared: &'static [Param]) -> NamedParams<'a> {
         NamedParams {

@@ -5,10 +5,9 @@
 //! built ([`RuleTable::new`]): a rule naming an unknown kind, or giving the target the wrong
 //! number of parameters, is an error then, not when the planner uses it.
 //!
-//! Not offered: swish with beta != 1 to hard_swish. hard_swish has no slope; the sound hard form
-//! of x * sigmoid(beta x) is x * HardSigmoid(x; beta / 6, 1/2) = hard_swish(beta x) / beta,
-//! which is no catalogue kind (it needs a Mul before and a Div after the HardSwish), so
-//! `swish-to-hard-swish` refuses unless beta rounds to 1 in float32.
+//! The hard form of x * sigmoid(beta x) keeps the slope: hard_swish with the same beta,
+//! x * HardSigmoid(x; beta / 6, 1/2) (`swish-to-hard-swish`), whose error is the SiLU's divided by
+//! |beta|.
 
 use std::sync::OnceLock;
 
@@ -72,9 +71,9 @@ macro_rules! rule {
 #[rustfmt::skip]
 /// The built-in rules. Bounds over the real line are computed, see [`max_abs_error`].
 pub const BUILT_IN: &[RuleSpec] = &[
-    rule!("silu-to-hard-swish";   silu       => hard_swish),
-    rule!("hard-swish-to-silu";   hard_swish => silu),
-    rule!("swish-to-hard-swish";  swish      => hard_swish if BETA_IS_ONE),
+    rule!("silu-to-hard-swish";   silu       => hard_swish [1.0]),
+    rule!("hard-swish-to-silu";   hard_swish => silu if BETA_IS_ONE),
+    rule!("swish-to-hard-swish";  swish      => hard_swish if SAME_BETA),
     rule!("gelu-to-tanh";         gelu       => gelu_tanh),
     rule!("gelu-tanh-to-erf";     gelu_tanh  => gelu),
     rule!("gelu-to-sigmoid-1702"; gelu       => swish [1.702]),
@@ -82,17 +81,23 @@ pub const BUILT_IN: &[RuleSpec] = &[
     rule!("sigmoid-to-hard-0.2";  sigmoid    => hard_sigmoid [0.2, 0.5]),
     rule!("tanh-to-hard-tanh";    tanh       => clip [-1.0, 1.0]),
     rule!("mish-to-silu";         mish       => silu),
-    rule!("mish-to-hard-swish";   mish       => hard_swish),
+    rule!("mish-to-hard-swish";   mish       => hard_swish [1.0]),
     rule!("celu-to-elu";          celu       => elu if ALPHA_IS_ONE),
     rule!("any-to-relu";          *          => relu),
 ];
 
-/// swish -> hard_swish only where swish is silu.
+/// hard_swish -> silu only where the hard-swish has the SiLU's slope.
 pub static BETA_IS_ONE: Guard = Guard {
     arity: 0,
     map: |p| p.first().is_some_and(|&b| same_f32(b, 1.0)).then(Vec::new),
-    refuses: "beta does not round to 1 in float32: hard_swish has no slope, and \
-              hard_swish(beta x) / beta is not a catalogue kind",
+    refuses: "beta does not round to 1 in float32: silu has no slope",
+};
+
+/// swish -> hard_swish with the swish's own slope.
+pub static SAME_BETA: Guard = Guard {
+    arity: 1,
+    map: |p| p.first().map(|&b| vec![b]),
+    refuses: "never",
 };
 
 /// celu -> elu only where they coincide.
@@ -573,15 +578,15 @@ mod tests {
             }
         ));
         static LYING: Guard = Guard {
-            arity: 0,
-            map: |_| Some(vec![1.0]),
+            arity: 1,
+            map: |_| Some(vec![1.0, 2.0]),
             refuses: "never",
         };
         assert!(matches!(
             err(spec("x", "swish", "hard_swish", ParamMap::Guarded(&LYING))),
             RuleError::Arity {
-                expected: 0,
-                got: 1,
+                expected: 1,
+                got: 2,
                 ..
             }
         ));
@@ -619,9 +624,15 @@ mod tests {
         let table = rules();
         let swish = get("swish").unwrap();
         let r = table.get("swish-to-hard-swish").unwrap();
-        assert_eq!(r.target_params(&[1.0]), Some(vec![]));
-        assert_eq!(r.target_params(&[1.702]), None);
-        assert!(r.error_over_reals(swish, &[1.702]).is_none());
+        assert_eq!(r.target_params(&[1.0]), Some(vec![1.0]));
+        assert_eq!(r.target_params(&[1.702]), Some(vec![1.702]));
+        // swish(x; b) - hard_swish(x; b) = (silu(bx) - hard_swish(bx)) / b: the SiLU bound
+        // 3 / (1 + e^3) (Howard et al. 2019 against Elfwing et al. 2017) divided by b.
+        let e = r.error_over_reals(swish, &[1.702]).unwrap();
+        let want = 3.0 / (1.0 + 3f64.exp()) / 1.702;
+        assert!((e.value - want).abs() <= 1e-12 * want, "{e:?}");
+        let back = table.get("hard-swish-to-silu").unwrap();
+        assert_eq!(back.target_params(&[1.702]), None);
         let r = table.get("celu-to-elu").unwrap();
         assert_eq!(r.target_params(&[1.0]), Some(vec![1.0]));
         assert_eq!(r.target_params(&[2.0]), None);

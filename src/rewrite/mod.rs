@@ -21,7 +21,7 @@ use crate::onnx::builder;
 use crate::onnx::proto::{NodeProto, TensorProto};
 use crate::onnx::{GraphKind, Model, ModelIndex};
 use crate::plan::{Action, Plan};
-use crate::scan::{Site, Spelling};
+use crate::scan::{Site, Spelling, TypeReader};
 use graph_mut::GraphMut;
 
 /// What one site became.
@@ -41,6 +41,8 @@ struct Patch {
     remove: Vec<usize>,
     nodes: Vec<NodeProto>,
     initializers: Vec<TensorProto>,
+    /// Readers of the site's intermediates that take only a type or shape, pointed elsewhere.
+    rewire: Vec<TypeReader>,
 }
 
 /// Applies every rewrite of the plan; returns the new model and what each site became.
@@ -106,6 +108,7 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
             remove: site.node_indices.clone(),
             nodes,
             initializers,
+            rewire: site.type_readers.clone(),
         });
     }
     if patches.is_empty() {
@@ -169,6 +172,7 @@ pub fn counterparts(
                         constants: a.constants.clone(),
                         rewritable: true,
                         notes: Vec::new(),
+                        type_readers: Vec::new(),
                         node_indices: locate(&mut a.node_outputs.iter().map(String::as_str))?,
                         ..site.clone()
                     })
@@ -181,6 +185,7 @@ pub fn counterparts(
                         .map(|&n| nodes[n].output.first().map_or("", String::as_str));
                     Ok(Site {
                         node_indices: locate(&mut outputs)?,
+                        type_readers: Vec::new(),
                         ..site.clone()
                     })
                 }
@@ -212,16 +217,23 @@ fn apply_patches(g: &mut GraphMut, patches: Vec<Patch>) {
         .collect();
     let mut insert_at: BTreeMap<usize, Vec<NodeProto>> = BTreeMap::new();
     let mut new_inits = Vec::new();
+    let mut rewire: BTreeMap<usize, Vec<TypeReader>> = BTreeMap::new();
     for p in patches {
         let at = *p.remove.iter().min().expect("a site has nodes");
         insert_at.entry(at).or_default().extend(p.nodes);
         new_inits.extend(p.initializers);
+        for r in p.rewire {
+            rewire.entry(r.node).or_default().push(r);
+        }
     }
     let old = std::mem::take(g.nodes());
     let mut read_by_removed: HashSet<String> = HashSet::new();
     let mut dropped_outputs: HashSet<String> = HashSet::new();
     let mut kept = Vec::with_capacity(old.len());
-    for (i, n) in old.into_iter().enumerate() {
+    for (i, mut n) in old.into_iter().enumerate() {
+        for r in rewire.remove(&i).unwrap_or_default() {
+            n.input[r.slot] = r.tensor;
+        }
         if let Some(new) = insert_at.remove(&i) {
             kept.extend(new);
         }

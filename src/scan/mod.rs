@@ -10,6 +10,7 @@
 
 mod expr;
 pub mod site;
+mod types;
 mod wiring;
 
 use std::collections::{BTreeMap, HashMap, HashSet};
@@ -22,12 +23,18 @@ use crate::onnx::index::{GraphIndex, ModelIndex};
 use crate::onnx::proto::NodeProto;
 use crate::onnx::proto::tensor_proto::DataType;
 use expr::{Const, Expr, MAX_CHAIN, Op, Operand, Step};
-pub use site::{Site, Spelling};
+pub use site::{Site, Spelling, TypeReader};
+use types::{Types, is_float};
 use wiring::{ABSENT, Wiring};
 
 /// Per-channel parameter sets larger than this are not identified (one identification per
 /// channel).
 const MAX_CHANNELS: usize = 4096;
+
+/// Parameters of two chains agree, so that the nodes one has beyond the other change nothing,
+/// when they match to this relative tolerance: the parameter recovery error of float32
+/// constants (identification's probes hold the rest).
+const SAME_PARAMS: f64 = 1e-5;
 
 /// What `scan` reports for a model.
 #[derive(Debug, Serialize)]
@@ -42,8 +49,11 @@ pub struct ScanReport {
 pub fn scan(index: &ModelIndex) -> ScanReport {
     let mut cache = Cache::default();
     let mut sites = Vec::new();
-    for g in 0..index.graphs.len() {
-        sites.extend(GraphScan::new(index, g, &mut cache).run());
+    let mut types: Vec<Types> = Vec::with_capacity(index.graphs.len());
+    for (g, graph) in index.graphs.iter().enumerate() {
+        let t = Types::infer(graph, graph.parent.map(|p| &types[p]));
+        sites.extend(GraphScan::new(index, g, &t, &mut cache).run());
+        types.push(t);
     }
     for (i, s) in sites.iter_mut().enumerate() {
         s.id = format!("s{}", i + 1);
@@ -69,10 +79,18 @@ struct Identified {
     params: Params,
 }
 
+impl Identified {
+    /// The same kind with the same parameters (see [`SAME_PARAMS`]).
+    fn same_as(&self, other: &Identified) -> bool {
+        self.kind.id == other.kind.id && self.params.agrees_with(&other.params, SAME_PARAMS)
+    }
+}
+
 struct GraphScan<'a, 'm> {
     index: &'a ModelIndex<'m>,
     g: usize,
     graph: &'a GraphIndex<'m>,
+    types: &'a Types<'m>,
     wiring: Wiring<'m>,
     /// Position of each node in the topological order.
     pos: Vec<usize>,
@@ -85,7 +103,12 @@ struct GraphScan<'a, 'm> {
 }
 
 impl<'a, 'm> GraphScan<'a, 'm> {
-    fn new(index: &'a ModelIndex<'m>, g: usize, cache: &'a mut Cache) -> Self {
+    fn new(
+        index: &'a ModelIndex<'m>,
+        g: usize,
+        types: &'a Types<'m>,
+        cache: &'a mut Cache,
+    ) -> Self {
         let graph = &index.graphs[g];
         let mut pos = vec![0; graph.nodes.len()];
         for (p, &n) in graph.order().iter().enumerate() {
@@ -97,6 +120,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             index,
             g,
             graph,
+            types,
             pos,
             ops: graph.nodes.iter().map(|n| expr::op_of(n, opset)).collect(),
             consts: vec![None; wiring.tensor_count()],
@@ -153,25 +177,73 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     }
 
     /// The site whose output is node `n`'s first output, if any.
+    ///
+    /// The largest chain the catalogue identifies is the site, less the nodes it does not need:
+    /// when a smaller chain ending at `n` is the same kind with the same parameters, the nodes
+    /// in front of it (a bias Add of any size, 0 included, a Cast) stay outside; when the chain
+    /// without its last node is the same too, that node (a bias after the activation) is not
+    /// part of it and the site ends earlier.
     fn site_ending_at(&mut self, n: usize) -> Option<Site> {
         let node = &self.graph.nodes[n];
         self.wiring.output(n)?;
         let fused_op = catalog::is_fused_op(node.domain(), node.op_type());
         if self.ops[n].is_some() {
             let chains = self.chains(n);
-            for (input, nodes) in chains.iter().rev() {
+            for i in (0..chains.len()).rev() {
+                let (input, nodes) = &chains[i];
                 if nodes.len() == 1 && fused_op {
                     break;
                 }
-                if let Some(site) = self.decomposed(*input, nodes) {
-                    return Some(site);
+                let Some(found) = self.identify_chain(*input, nodes) else {
+                    continue;
+                };
+                let smallest = (0..i).find_map(|j| {
+                    let (input, nodes) = &chains[j];
+                    self.identify_chain(*input, nodes)
+                        .filter(|f| f.same_as(&found))
+                        .map(|f| (j, f))
+                });
+                let (j, found) = smallest.unwrap_or((i, found));
+                let (input, nodes) = &chains[j];
+                if nodes.len() == 1 && fused_op {
+                    return self.fused(n);
                 }
+                if self.ends_before_last(*input, nodes, &found) {
+                    break;
+                }
+                let input = self.wiring.name(*input);
+                return Some(self.site(
+                    nodes,
+                    input,
+                    found.kind,
+                    Some(found.params),
+                    Spelling::Decomposed,
+                ));
             }
         }
         if fused_op {
             return self.fused(n);
         }
         None
+    }
+
+    /// True when the chain's last node has one computed input and the chain without it is
+    /// already what the chain is (`found`): that node is something after the activation.
+    fn ends_before_last(&mut self, input: u32, nodes: &[usize], found: &Identified) -> bool {
+        let (&last, rest) = nodes.split_last().expect("non-empty chain");
+        if rest.is_empty() {
+            return false;
+        }
+        let mut dynamic = Vec::new();
+        self.add_dynamic_inputs(last, &mut dynamic);
+        let [t] = dynamic[..] else {
+            return false;
+        };
+        if self.wiring.producer(t).is_none_or(|p| !rest.contains(&p)) {
+            return false;
+        }
+        self.identify_chain(input, rest)
+            .is_some_and(|f| f.same_as(found))
     }
 
     /// Single-input chains ending at node `n`, smallest first: (input tensor, nodes in
@@ -207,8 +279,19 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         out
     }
 
-    /// Compiles and identifies a chain; the site when the catalogue recognises it.
-    fn decomposed(&mut self, input: u32, nodes: &[usize]) -> Option<Site> {
+    /// Compiles and identifies a chain of float computations; its kind and parameters when the
+    /// catalogue recognises it.
+    fn identify_chain(&mut self, input: u32, nodes: &[usize]) -> Option<Identified> {
+        let last = *nodes.last()?;
+        let output = self.wiring.output(last)?;
+        let not_float = |t: u32| {
+            self.types
+                .of(self.wiring.name(t))
+                .is_some_and(|dt| !is_float(dt))
+        };
+        if not_float(input) || not_float(output) {
+            return None;
+        }
         let expr = self.compile(input, nodes)?;
         let nonlinear = expr.steps.iter().any(|s| {
             !expr::is_linear(&s.op)
@@ -219,7 +302,8 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                         .count()
                         > 1)
         });
-        if !nonlinear || expr.channels > MAX_CHANNELS {
+        let integer = expr.steps.iter().any(|s| matches!(s.op, Op::Truncate));
+        if !nonlinear || integer || expr.channels > MAX_CHANNELS {
             return None;
         }
         let key = expr.key();
@@ -233,9 +317,10 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             }
         }?;
         // The cache key holds the constants' values, not their dims: the shape is this chain's.
-        let params = Params::new(found.params.values().to_vec(), expr.channel_shape.clone());
-        let input = self.wiring.name(input);
-        Some(self.site(nodes, input, found.kind, Some(params), Spelling::Decomposed))
+        Some(Identified {
+            kind: found.kind,
+            params: Params::new(found.params.values().to_vec(), expr.channel_shape.clone()),
+        })
     }
 
     fn compile(&mut self, input: u32, nodes: &[usize]) -> Option<Expr> {
@@ -293,6 +378,10 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     fn fused(&mut self, n: usize) -> Option<Site> {
         let all: &'m [NodeProto] = self.graph.nodes;
         let node = &all[n];
+        let float = |t: Option<&String>| t.and_then(|t| self.types.of(t)).is_none_or(is_float);
+        if !float(node.input.first()) || !float(node.output.first()) {
+            return None;
+        }
         let opset = self.graph.opset(node.domain()).unwrap_or(1);
         let values: Vec<Option<Rc<Const>>> = (0..self.wiring.inputs(n).len())
             .map(|k| self.constant_id(self.wiring.inputs(n)[k]))
@@ -333,6 +422,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         let inside: HashSet<usize> = nodes.iter().copied().collect();
         let mut notes = Vec::new();
         let mut rewritable = true;
+        let mut type_readers = Vec::new();
         for &n in nodes {
             for t in &graph.nodes[n].output {
                 if *t == output {
@@ -343,12 +433,26 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                     rewritable = false;
                 }
                 for &c in graph.consumers(t) {
-                    if !inside.contains(&c) {
-                        notes.push(format!(
-                            "intermediate '{t}' is also read by '{}'",
-                            graph.label(c)
-                        ));
-                        rewritable = false;
+                    if inside.contains(&c) {
+                        continue;
+                    }
+                    match self.rewire_type_reader(c, t, [input, output.as_str()], &inside) {
+                        Some(readers) => {
+                            notes.push(format!(
+                                "intermediate '{t}' is also read by '{}' for its type or shape \
+                                 only; the rewrite points it at '{}'",
+                                graph.label(c),
+                                readers[0].tensor
+                            ));
+                            type_readers.extend(readers);
+                        }
+                        None => {
+                            notes.push(format!(
+                                "intermediate '{t}' is also read by '{}'",
+                                graph.label(c)
+                            ));
+                            rewritable = false;
+                        }
                     }
                 }
             }
@@ -394,6 +498,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             graph: graph.path.clone(),
             rewritable,
             notes,
+            type_readers: if rewritable { type_readers } else { Vec::new() },
             elem_type,
             opset: graph.opset("").unwrap_or(1),
             graph_index: self.g,
@@ -401,16 +506,75 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         }
     }
 
-    /// The element type of a site's input: declared, else that of its float constants, else
-    /// float32.
+    /// Node `reader`'s inputs that read `t` for its element type or shape only (CastLike's
+    /// second input, Shape, Size), as readers of the first of `instead` (the site's input,
+    /// then its output) that gives the same: the same element type for CastLike, the same
+    /// declared shape (when both are declared) for Shape and Size. The output is taken only when
+    /// no node of the site (`inside`) reads what the reader writes, which would make a cycle.
+    /// `None` when some read needs the values or neither tensor will do.
+    fn rewire_type_reader(
+        &self,
+        reader: usize,
+        t: &str,
+        instead: [&str; 2],
+        inside: &HashSet<usize>,
+    ) -> Option<Vec<TypeReader>> {
+        let node = &self.graph.nodes[reader];
+        let slots: Vec<usize> = (0..node.input.len())
+            .filter(|&k| node.input[k] == t)
+            .collect();
+        let shape = |name: &str| {
+            self.graph
+                .value_info(name)
+                .and_then(|v| v.r#type.as_ref())
+                .and_then(|t| t.tensor_type.as_ref())
+                .and_then(|t| t.shape.clone())
+        };
+        let feeds_site = node
+            .output
+            .iter()
+            .any(|o| self.graph.consumers(o).iter().any(|c| inside.contains(c)));
+        let usable = |other: &str| {
+            let same_type = match (self.types.of(t), self.types.of(other)) {
+                (Some(a), Some(b)) => a == b,
+                (a, b) => a.or(b).is_none_or(is_float),
+            };
+            let same_shape = match (shape(t), shape(other)) {
+                (Some(a), Some(b)) => a == b,
+                _ => true,
+            };
+            slots
+                .iter()
+                .all(|&k| match (node.domain(), node.op_type()) {
+                    ("" | "ai.onnx", "CastLike") => k == 1 && same_type,
+                    ("" | "ai.onnx", "Shape" | "Size") => k == 0 && same_shape,
+                    _ => false,
+                })
+        };
+        let [input, output] = instead;
+        let tensor = if usable(input) {
+            input
+        } else if usable(output) && !feeds_site {
+            output
+        } else {
+            return None;
+        };
+        Some(
+            slots
+                .iter()
+                .map(|&slot| TypeReader {
+                    node: reader,
+                    slot,
+                    tensor: tensor.to_string(),
+                })
+                .collect(),
+        )
+    }
+
+    /// The element type of a site's input: declared or inferred, else that of its float
+    /// constants, else float32.
     fn elem_type(&self, input: &str, constants: &[String]) -> DataType {
-        let declared = self
-            .graph
-            .value_info(input)
-            .and_then(|v| v.r#type.as_ref())
-            .and_then(|t| t.tensor_type.as_ref())
-            .and_then(|t| t.elem_type)
-            .and_then(|c| DataType::try_from(c).ok());
+        let declared = self.types.of(input).filter(|dt| is_float(*dt));
         declared
             .or_else(|| {
                 constants

@@ -40,9 +40,13 @@ pub struct Site {
     pub output: String,
     /// Path of the graph the site lives in (`main`, `main/If_3.then_branch`, ...).
     pub graph: String,
-    /// Whether the site can be replaced without changing anything else in the graph.
+    /// Whether the site can be replaced without changing anything else in the graph (but the
+    /// readers of `type_readers`).
     pub rewritable: bool,
     pub notes: Vec<String>,
+    /// Nodes outside the site that read one of its intermediates for its type or shape only;
+    /// the rewrite points them at the tensor given.
+    pub type_readers: Vec<TypeReader>,
     /// Element type of the input: declared, else that of the site's float constants, else
     /// float32.
     pub elem_type: DataType,
@@ -52,6 +56,17 @@ pub struct Site {
     pub graph_index: usize,
     /// Indices of the compute nodes in their graph's node list.
     pub node_indices: Vec<usize>,
+}
+
+/// An input of a node outside a site that takes an intermediate of the site for its element
+/// type or shape only, and the tensor of the same type and shape it can read instead.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct TypeReader {
+    /// The reading node's index in the site's graph.
+    pub node: usize,
+    /// The input position.
+    pub slot: usize,
+    pub tensor: String,
 }
 
 impl Site {

@@ -146,10 +146,14 @@ mod tests {
             output: format!("{id}.out"),
             graph: "main".into(),
             kind_a: crate::catalog::get(from).unwrap(),
-            params_a: Some(Params::scalars(&[])),
+            params_a: Some(Params::scalars(
+                &crate::catalog::get(from).unwrap().defaults(),
+            )),
             ops_a: vec![],
             kind_b: crate::catalog::get(to).unwrap(),
-            params_b: Some(Params::scalars(&[])),
+            params_b: Some(Params::scalars(
+                &crate::catalog::get(to).unwrap().defaults(),
+            )),
             ops_b: vec![],
             local: None,
             local_basis: None,

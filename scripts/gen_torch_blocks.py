@@ -12,6 +12,8 @@ Invented scenarios, each a real block as models ship it, with random seeded weig
   ship-log        ship-log summariser: one decoder layer with RMSNorm, rotary embeddings,
                   causal and padding masks, position ids from a cumulative sum of the
                   int64 mask (left padding) and a SwiGLU MLP (dynamic batch and sequence)
+  ship-log-unpadded  the same decoder fed input_ids only: its mask is computed from the
+                  sequence length, so the cumulative sum reads a shape-only tensor
   reef-survey     coral-reef survey tagger: patch embedding and two windowed-attention
                   blocks (the second with shifted windows and its mask), GELU MLPs
   allotment-diary allotment-diary topic tagger: a T5-style encoder whose relative-position
@@ -426,6 +428,30 @@ def ship_log():
     )
 
 
+class ShipLogUnpadded(ShipLog):
+    """The same decoder exported for unpadded batches: input_ids only, every position a
+    real token. The mask is computed from the sequence length (a Range), so the
+    cumulative sum of the position ids reads a tensor that depends on the input's
+    shape alone."""
+
+    def forward(self, input_ids):
+        s = input_ids.shape[1]
+        keep = (torch.arange(s, device=input_ids.device)[None, :] >= 0).long()
+        return super().forward(input_ids, keep.expand_as(input_ids))
+
+
+def ship_log_unpadded():
+    sc = ship_log()
+    sc.id = "ship-log-unpadded"
+    sc.description = ("ship-log summariser exported for unpadded batches (input_ids only; "
+                      "the mask comes from the sequence length)")
+    sc.net = ShipLogUnpadded()
+    sc.inputs = sc.inputs[:1]
+    sc.feeds = lambda rng, sizes: {"input_ids": rng.integers(
+        1, 96, size=(sizes["batch"], sizes["seq"]), dtype=np.int64)}
+    return sc
+
+
 # ---------------------------------------------------------------- reef-survey
 def window_partition(x, w):
     b, h, wd, c = x.shape
@@ -754,8 +780,8 @@ def turbine_icing():
     )
 
 
-SCENARIOS = [solar_crack, ferry_intent, ship_log, reef_survey, allotment_diary, loom_mlp,
-             turbine_icing]
+SCENARIOS = [solar_crack, ferry_intent, ship_log, ship_log_unpadded, reef_survey,
+             allotment_diary, loom_mlp, turbine_icing]
 
 
 # ---------------------------------------------------------------- all tensor values

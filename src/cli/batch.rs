@@ -132,7 +132,12 @@ fn convert(
     inputs: &InputArgs,
     opts: &crate::measure::CompareOptions,
 ) -> Result<Audit> {
-    let audit = audit_model(&job.source, conversion, inputs, opts)?;
+    let audit = audit_model(
+        &job.source,
+        conversion,
+        &inputs.for_model(&job.relative),
+        opts,
+    )?;
     let out = out_dir.join(&job.relative);
     if let Some(parent) = out.parent() {
         std::fs::create_dir_all(parent)

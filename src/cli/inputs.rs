@@ -9,17 +9,22 @@
 //!   `--range` spans mean +- 2 standard deviations, about 95% of the draws (default: mean 0,
 //!   standard deviation 1, i.e. `-2,2`).
 //!
-//! Symbolic input dims take sizes from `--dim NAME=SIZE`; an unset one is an error naming it, and
-//! so is a `--dim` no input uses (except in `batch`, whose models share the flags).
+//! Files and random data mix: an input no file gives is drawn at random, sized by the dims the files
+//! give and `--dim NAME=SIZE`, which also checks the files (a disagreement is an error). An unset
+//! dim is an error naming it, and so is a `--dim` no input uses (except in `batch`, whose models
+//! share the flags). `batch --inputs-dir DIR` takes each model's samples from its own subfolder
+//! when there is one: `DIR/PATH` (PATH: the model's path below the searched folder without
+//! `.onnx`), else `DIR/PARENT` (the folder holding it), else `DIR/STEM` (its file stem); without
+//! one, from `DIR` itself.
 
 use std::collections::BTreeMap;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result, bail};
 
 use crate::run::inputs::{
-    Binding, DEFAULT_MAX_ELEMENTS, Distribution, InputLoader, RandomInputs, parse_dim_size,
-    symbolic_dims,
+    Binding, DEFAULT_MAX_ELEMENTS, Distribution, InputLoader, Loaded, RandomInputs, Source,
+    parse_dim_size, symbolic_dims,
 };
 use crate::run::{InputSpec, Sample};
 
@@ -32,34 +37,35 @@ pub enum Dist {
 
 /// Where input samples come from.
 #[derive(Debug, Clone, clap::Args)]
-#[command(next_help_heading = "Inputs (random unless --input or --inputs-dir is given)")]
+#[command(next_help_heading = "Inputs (random where --input or --inputs-dir gives none)")]
 pub struct InputArgs {
     /// Feed input NAME from FILE (.npy, .npz or .pb); a bare .npz feeds every input it names.
     /// Repeat an input to give several samples.
     #[arg(long = "input", value_name = "NAME=FILE")]
     pub input: Vec<String>,
     /// Read samples from a folder: test_data_set_N/ subfolders, input_K.pb|.npy files, or
-    /// numbered .npz archives.
+    /// numbered .npz archives. In `batch`, a subfolder named after a model's file stem holds
+    /// that model's samples.
     #[arg(long, value_name = "DIR", conflicts_with = "input")]
     pub inputs_dir: Option<PathBuf>,
     /// Seed of the random inputs [default: 0].
-    #[arg(long, value_name = "N", conflicts_with_all = ["input", "inputs_dir"])]
+    #[arg(long, value_name = "N")]
     pub seed: Option<u64>,
     /// Distribution of the random inputs [default: normal].
-    #[arg(long, value_enum, conflicts_with_all = ["input", "inputs_dir"])]
+    #[arg(long, value_enum)]
     pub dist: Option<Dist>,
     /// Uniform: the bounds [LO, HI). Normal: mean (LO+HI)/2, standard deviation (HI-LO)/4
     /// [default: -1,1 uniform; -2,2 normal].
-    #[arg(long, value_name = "LO,HI", allow_hyphen_values = true,
-          conflicts_with_all = ["input", "inputs_dir"])]
+    #[arg(long, value_name = "LO,HI", allow_hyphen_values = true)]
     pub range: Option<String>,
     /// Number of random samples [default: 1].
     #[arg(long, value_name = "N", conflicts_with_all = ["input", "inputs_dir"])]
     pub samples: Option<usize>,
-    /// Size of a symbolic input dim for random inputs (repeatable).
-    #[arg(long = "dim", value_name = "NAME=SIZE", conflicts_with_all = ["input", "inputs_dir"])]
+    /// Size of a symbolic input dim (repeatable): for inputs drawn at random, and checked against
+    /// the files given.
+    #[arg(long = "dim", value_name = "NAME=SIZE")]
     pub dim: Vec<String>,
-    /// Refuse any input tensor with more elements than this.
+    /// Refuse samples holding more input elements than this, all samples together.
     #[arg(long, value_name = "N", default_value_t = DEFAULT_MAX_ELEMENTS)]
     pub max_elements: usize,
     /// Ignore a `--dim` no input of the model uses (a batch shares its dims across models)
@@ -78,36 +84,57 @@ pub struct LoadedSamples {
 impl InputArgs {
     /// Builds the samples for a model with these inputs.
     pub fn load(&self, inputs: &[InputSpec]) -> Result<LoadedSamples> {
-        let loader = InputLoader::new(inputs).with_max_elements(self.max_elements);
-        if let Some(dir) = &self.inputs_dir {
-            let samples = loader.from_folder(dir)?;
-            return Ok(LoadedSamples {
-                samples,
-                source: format!("folder {}", dir.display()),
-            });
-        }
-        if !self.input.is_empty() {
-            let bindings = self
-                .input
-                .iter()
-                .map(|b| Binding::parse(b))
-                .collect::<Result<Vec<_>, _>>()?;
-            let samples = loader.from_bindings(&bindings)?;
-            return Ok(LoadedSamples {
-                samples,
-                source: format!("files {}", self.input.join(", ")),
-            });
-        }
         let mut spec = self.random()?;
         if self.ignore_unused_dims {
             let used = symbolic_dims(inputs);
             spec.dims.retain(|name, _| used.contains(&name.as_str()));
         }
-        let samples = loader.random(&spec)?;
+        let loader = InputLoader::new(inputs)
+            .with_max_elements(self.max_elements)
+            .with_random(spec.clone());
+        let bindings = self
+            .input
+            .iter()
+            .map(|b| Binding::parse(b))
+            .collect::<Result<Vec<_>, _>>()?;
+        let (loaded, files) = match &self.inputs_dir {
+            Some(dir) => (
+                loader.load(Source::Folder(dir))?,
+                Some(format!("folder {}", dir.display())),
+            ),
+            None if !bindings.is_empty() => (
+                loader.load(Source::Files(&bindings))?,
+                Some(format!("files {}", self.input.join(", "))),
+            ),
+            None => (loader.load(Source::Random)?, None),
+        };
+        let source = describe(files, &loaded, &spec);
         Ok(LoadedSamples {
-            samples,
-            source: describe_random(&spec),
+            samples: loaded.samples,
+            source,
         })
+    }
+
+    /// These options for the model at `relative` below a searched folder: its own subfolder of
+    /// `--inputs-dir` when there is one (see the module doc).
+    pub fn for_model(&self, relative: &Path) -> InputArgs {
+        let Some(dir) = &self.inputs_dir else {
+            return self.clone();
+        };
+        let by_path = Some(dir.join(relative.with_extension("")));
+        let by_parent = relative
+            .parent()
+            .filter(|p| !p.as_os_str().is_empty())
+            .map(|p| dir.join(p));
+        let by_stem = relative.file_stem().map(|stem| dir.join(stem));
+        let own = [by_path, by_parent, by_stem]
+            .into_iter()
+            .flatten()
+            .find(|d| d.is_dir());
+        InputArgs {
+            inputs_dir: own.or_else(|| Some(dir.clone())),
+            ..self.clone()
+        }
     }
 
     /// The random-input settings, validated.
@@ -153,6 +180,21 @@ fn parse_range(text: &str) -> Result<(f64, f64)> {
         bail!(bad());
     }
     Ok((lo, hi))
+}
+
+/// Where the samples came from: the files, the random draws and the inputs they fed, the notes.
+fn describe(files: Option<String>, loaded: &Loaded, spec: &RandomInputs) -> String {
+    let mut parts: Vec<String> = files.into_iter().collect();
+    if !loaded.drawn.is_empty() {
+        let random = describe_random(spec);
+        parts.push(if parts.is_empty() {
+            random
+        } else {
+            format!("{random} for {}", loaded.drawn.join(", "))
+        });
+    }
+    parts.extend(loaded.notes.iter().cloned());
+    parts.join("; ")
 }
 
 fn describe_random(spec: &RandomInputs) -> String {

@@ -47,11 +47,10 @@ fn compare(got: &NamedTensor, expected: &ArrayD<f64>) -> Result<(), String> {
             expected.shape()
         ));
     }
-    match got
-        .iter()
-        .zip(expected.iter())
-        .find(|(g, e)| !((*g - *e).abs() <= ATOL + RTOL * e.abs()))
-    {
+    match got.iter().zip(expected.iter()).find(|(g, e)| {
+        let err = (*g - *e).abs();
+        err.is_nan() || err > ATOL + RTOL * e.abs()
+    }) {
         Some((g, e)) => Err(format!("got {g}, expected {e}")),
         None => Ok(()),
     }

@@ -180,7 +180,9 @@ pub fn symbolic_dims(inputs: &[InputSpec]) -> Vec<&str> {
 
 /// Refuses a set dim that no input uses (most likely a typo).
 fn check_dim_names(inputs: &[InputSpec], dims: &BTreeMap<String, usize>) -> Result<(), RunError> {
-    let used = symbolic_dims(inputs);
+    let mut used = symbolic_dims(inputs);
+    used.sort_unstable();
+    used.dedup();
     match dims.keys().find(|k| !used.contains(&k.as_str())) {
         Some(unused) => Err(RunError::BadArgument {
             text: format!("{unused}=SIZE"),

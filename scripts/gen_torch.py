@@ -257,8 +257,11 @@ def truth(g, net):
         spec = b.spec
         if isinstance(b, Chain) and spec.get("kind"):
             params = resolve_params(spec["params"], b.act)
+            x_in, y_out = g.trim_no_ops(starts[0], end)
+            if (x_in, y_out) != (starts[0], end):
+                compute, constant = g.region([x_in], y_out)
             sites.append(site_entry(g, f"s{len(sites):02d}", b.name, spec["kind"], params,
-                                    starts[0], end, compute, constant))
+                                    x_in, y_out, compute, constant))
             continue
         # near misses: record them, plus any true site inside
         misses.append({

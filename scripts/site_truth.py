@@ -188,6 +188,52 @@ class Graph:
                     raise ValueError(f"region of {output} reads {x} outside its inputs")
         return compute, constant
 
+    def folded_value(self, name):
+        """Value of a constant, also through the Cast, CastLike and Identity nodes of an
+        un-optimised export; else None."""
+        v = self.const_value(name)
+        i = self.producer.get(name)
+        if v is None and i is not None and self.nodes[i].op_type in ("Cast", "CastLike",
+                                                                      "Identity"):
+            return self.folded_value(self.nodes[i].input[0])
+        return v
+
+    def trim_no_ops(self, x_in, y_out):
+        """(x_in, y_out) without the exporter's no-op scale factors at the block's edges.
+
+        torch's ELU family computes scale * elu(input_scale * x); the dynamo exporter without
+        optimisation writes both factors, 1 by default, as Mul nodes. ONNX's Elu has neither,
+        and a site holds only what its kind computes (a Mul by 1 or an Add of 0 is a
+        computation the kind does not contain), so the site starts after and ends before them.
+        """
+        def no_op(i, x):
+            n = self.nodes[i]
+            if n.op_type not in ("Mul", "Div", "Add", "Sub") or len(n.input) != 2:
+                return False
+            if n.op_type in ("Div", "Sub") and n.input[0] != x:
+                return False
+            other = n.input[1] if n.input[0] == x else n.input[0]
+            v = self.folded_value(other)
+            neutral = 1.0 if n.op_type in ("Mul", "Div") else 0.0
+            return v is not None and v.size == 1 and float(v.reshape(())) == neutral
+
+        moved = True
+        while moved:
+            moved = False
+            # CastLike's second input takes only x's type (the cast constants of the factors)
+            readers = [j for j in self.consumers.get(x_in, [])
+                       if not (self.nodes[j].op_type == "CastLike"
+                               and self.nodes[j].input[0] != x_in)]
+            if len(readers) == 1 and no_op(readers[0], x_in) and x_in != y_out:
+                x_in, moved = self.nodes[readers[0]].output[0], True
+            i = self.producer.get(y_out)
+            if i is not None and y_out != x_in:
+                n = self.nodes[i]
+                dynamic = [t for t in n.input if t and self.folded_value(t) is None]
+                if len(dynamic) == 1 and no_op(i, dynamic[0]):
+                    y_out, moved = dynamic[0], True
+        return x_in, y_out
+
     def constants_read(self, compute, constant):
         """Constant tensors (initializers / constant-node outputs) the region reads."""
         inside = {o for i in compute + constant for o in self.nodes[i].output}

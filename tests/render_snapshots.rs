@@ -34,11 +34,12 @@ fn audit_plan_drift_and_html() {
     )
     .unwrap();
     let inputs = InputSource {
-        origin: Origin::Random(RandomInputs {
+        origin: Origin::Random,
+        random: RandomInputs {
             samples: 2,
             dims: BTreeMap::from([("batch".to_string(), 1)]),
             ..RandomInputs::default()
-        }),
+        },
         max_elements: DEFAULT_MAX_ELEMENTS,
         ignore_unused_dims: false,
     };

@@ -19,7 +19,7 @@ use actswap::onnx::{Model, SaveOptions};
 use actswap::plan::Plan;
 use actswap::plan::request::Request;
 use actswap::report::html::{CURVE_POINTS, ModelSection, render};
-use actswap::run::inputs::{Binding, DEFAULT_MAX_ELEMENTS};
+use actswap::run::inputs::{Binding, DEFAULT_MAX_ELEMENTS, RandomInputs};
 use measure_support as fx;
 use scraper::{ElementRef, Html, Selector};
 use serde_json::Value;
@@ -267,6 +267,7 @@ fn library_audit(id: &str, to: &str) -> (Plan, DriftReport) {
             input: None,
             path: dir.join("inputs.npz"),
         }]),
+        random: RandomInputs::default(),
         max_elements: DEFAULT_MAX_ELEMENTS,
         ignore_unused_dims: false,
     };

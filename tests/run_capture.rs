@@ -209,5 +209,5 @@ fn a_compiled_plan_runs_again_and_refuses_another_shape() {
 fn models_and_plans_are_send_and_sync() {
     fn shared<T: Send + Sync>() {}
     shared::<actswap::run::TractModel>();
-    shared::<actswap::run::Plan>();
+    shared::<actswap::run::Compiled>();
 }

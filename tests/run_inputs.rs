@@ -9,7 +9,9 @@
 use std::collections::BTreeMap;
 use std::path::Path;
 
-use actswap::run::inputs::{Binding, Distribution, InputLoader, RandomInputs, parse_dim_size};
+use actswap::run::inputs::{
+    Binding, Distribution, InputLoader, Loaded, RandomInputs, Source, parse_dim_size,
+};
 use actswap::run::{DatumType, Dim, InputSpec, RunError, Sample};
 use ndarray::{ArrayD, IxDyn, array};
 use ndarray_npy::{NpzWriter, WriteNpyExt};
@@ -372,8 +374,8 @@ fn an_oversized_npy_is_refused_from_its_header() {
 #[test]
 fn bad_inputs_get_one_line_errors() {
     let dir = tempfile::tempdir().unwrap();
-    let f64_file = dir.path().join("x64.npy");
-    write_npy(&f64_file, &ArrayD::<f64>::zeros(IxDyn(&[2, 3])));
+    let int_file = dir.path().join("x_int.npy");
+    write_npy(&int_file, &ArrayD::<i32>::zeros(IxDyn(&[2, 3])));
     let wrong_shape = dir.path().join("x4.npy");
     write_npy(&wrong_shape, &ArrayD::<f32>::zeros(IxDyn(&[2, 4])));
     let inputs = two_inputs();
@@ -385,12 +387,12 @@ fn bad_inputs_get_one_line_errors() {
         matches!(&e, RunError::MissingInput(name) if name == "x"),
         "{e}"
     );
-    let e = error(format!("y={}", f64_file.display()));
+    let e = error(format!("y={}", int_file.display()));
     assert!(
         matches!(&e, RunError::UnknownInput { name, .. } if name == "y"),
         "{e}"
     );
-    let e = error(format!("x={}", f64_file.display()));
+    let e = error(format!("x={}", int_file.display()));
     assert!(matches!(e, RunError::WrongType { .. }), "{e}");
     let e = error(format!("x={}", wrong_shape.display()));
     assert!(matches!(e, RunError::ShapeMismatch { .. }), "{e}");
@@ -410,4 +412,176 @@ fn dim_sizes_parse() {
     assert!(parse_dim_size("batch").is_err());
     assert!(parse_dim_size("batch=-1").is_err());
     assert!(parse_dim_size("=3").is_err());
+}
+
+/// numpy writes float64 unless told otherwise (numpy documentation, `numpy.save` / default dtype):
+/// a float64 file for a float32 input is rounded to nearest as numpy's `astype(np.float32)` does
+/// (IEEE 754 round-half-to-even), and a float32 file for a float16 input likewise, each with a note.
+#[test]
+fn float_files_of_another_width_are_converted_with_a_note() {
+    let dir = tempfile::tempdir().unwrap();
+    // 0.1 is not exact in binary; 1 + 2^-30 rounds to 1 in float32 (24-bit significand).
+    let wide = array![[0.1f64, -2.5, 1.0 + 2f64.powi(-30)], [1e30, 0.0, 3.0]].into_dyn();
+    write_npy(&dir.path().join("x.npy"), &wide);
+    write_npy(&dir.path().join("mask.npy"), &array![1i64, 0].into_dyn());
+    let inputs = two_inputs();
+    let bindings = [
+        bind(&format!("x={}", dir.path().join("x.npy").display())),
+        bind(&format!("mask={}", dir.path().join("mask.npy").display())),
+    ];
+    let loaded = InputLoader::new(&inputs)
+        .load(Source::Files(&bindings))
+        .unwrap();
+    let x = tensor_of(&loaded.samples[0], "x");
+    assert_eq!(x.datum_type(), DatumType::F32);
+    let got: Vec<f32> = x
+        .to_plain_array_view::<f32>()
+        .unwrap()
+        .iter()
+        .copied()
+        .collect();
+    assert_eq!(got, [0.1f32, -2.5, 1.0, 1e30, 0.0, 3.0]);
+    assert_eq!(
+        loaded.notes,
+        ["input 'x': float64 data converted to float32 (rounded to nearest)"]
+    );
+
+    // float32 -> float16: 65504 is float16's largest finite value (IEEE 754 binary16).
+    let half = [spec("h", DatumType::F16, vec![Dim::Fixed(3)])];
+    write_npy(
+        &dir.path().join("h.npy"),
+        &array![0.5f32, 65504.0, 1.0 / 3.0].into_dyn(),
+    );
+    let loaded = InputLoader::new(&half)
+        .load(Source::Files(&[bind(&format!(
+            "h={}",
+            dir.path().join("h.npy").display()
+        ))]))
+        .unwrap();
+    let h = tensor_of(&loaded.samples[0], "h");
+    let got: Vec<f16> = h
+        .to_plain_array_view::<f16>()
+        .unwrap()
+        .iter()
+        .copied()
+        .collect();
+    assert_eq!(
+        got,
+        [f16::from_f32(0.5), f16::MAX, f16::from_f32(1.0 / 3.0)]
+    );
+    assert_eq!(loaded.notes.len(), 1);
+
+    // A finite value float16 cannot hold is refused, not turned into infinity.
+    write_npy(
+        &dir.path().join("big.npy"),
+        &array![0.5f32, 1e6, 0.0].into_dyn(),
+    );
+    let error = InputLoader::new(&half)
+        .from_bindings(&[bind(&format!("h={}", dir.path().join("big.npy").display()))])
+        .unwrap_err();
+    assert!(matches!(error, RunError::Conversion { .. }), "{error}");
+    assert!(error.to_string().contains("1000000"), "{error}");
+}
+
+fn random_with(dims: &[(&str, usize)]) -> RandomInputs {
+    RandomInputs {
+        dims: dims.iter().map(|(k, v)| (k.to_string(), *v)).collect(),
+        ..RandomInputs::default()
+    }
+}
+
+/// An input no file gives is drawn at random, sized by the dims the files give; a set dim is
+/// checked against the files.
+#[test]
+fn files_and_random_inputs_mix_and_agree_on_dims() {
+    let dir = tempfile::tempdir().unwrap();
+    write_npy(
+        &dir.path().join("x.npy"),
+        &ArrayD::<f32>::zeros(IxDyn(&[5, 3])),
+    );
+    let inputs = two_inputs();
+    let files = [bind(&format!("x={}", dir.path().join("x.npy").display()))];
+
+    let strict = InputLoader::new(&inputs).from_bindings(&files).unwrap_err();
+    assert!(
+        matches!(&strict, RunError::MissingInput(n) if n == "mask"),
+        "{strict}"
+    );
+
+    let loaded: Loaded = InputLoader::new(&inputs)
+        .with_random(random_with(&[]))
+        .load(Source::Files(&files))
+        .unwrap();
+    assert_eq!(loaded.drawn, ["mask"]);
+    assert_eq!(
+        tensor_of(&loaded.samples[0], "mask").shape(),
+        [5],
+        "batch from x"
+    );
+
+    let agreeing = InputLoader::new(&inputs)
+        .with_random(random_with(&[("batch", 5)]))
+        .load(Source::Files(&files));
+    assert!(agreeing.is_ok());
+    let error = InputLoader::new(&inputs)
+        .with_random(random_with(&[("batch", 4)]))
+        .load(Source::Files(&files))
+        .unwrap_err();
+    assert!(
+        matches!(&error, RunError::DimConflict { dim, .. } if dim == "batch"),
+        "{error}"
+    );
+    assert!(error.to_string().contains("--dim"), "{error}");
+}
+
+/// The element limit bounds all samples together: many small samples are refused before any is
+/// drawn.
+#[test]
+fn the_element_limit_bounds_all_samples_together() {
+    let inputs = [spec("x", DatumType::F32, vec![Dim::Fixed(1000)])];
+    let many = RandomInputs {
+        samples: 100_000,
+        ..RandomInputs::default()
+    };
+    let error = InputLoader::new(&inputs)
+        .with_max_elements(1 << 20)
+        .random(&many)
+        .unwrap_err();
+    assert!(
+        matches!(error, RunError::SamplesOverLimit { .. }),
+        "{error}"
+    );
+    let fits = RandomInputs {
+        samples: 1000,
+        ..RandomInputs::default()
+    };
+    let samples = InputLoader::new(&inputs)
+        .with_max_elements(1 << 20)
+        .random(&fits)
+        .unwrap();
+    assert_eq!(samples.len(), 1000);
+
+    // A file given once is copied into every sample, and counted so.
+    let dir = tempfile::tempdir().unwrap();
+    let two = two_inputs();
+    write_npy(
+        &dir.path().join("x.npy"),
+        &ArrayD::<f32>::zeros(IxDyn(&[2, 3])),
+    );
+    write_npy(&dir.path().join("m.npy"), &array![1i64, 1].into_dyn());
+    let mut bindings = vec![bind(&format!("x={}", dir.path().join("x.npy").display()))];
+    for _ in 0..4 {
+        bindings.push(bind(&format!(
+            "mask={}",
+            dir.path().join("m.npy").display()
+        )));
+    }
+    // 4 samples of 6 + 2 elements: 32.
+    let loader = |limit| InputLoader::new(&two).with_max_elements(limit);
+    assert_eq!(loader(32).from_bindings(&bindings).unwrap().len(), 4);
+    let error = loader(31).from_bindings(&bindings).unwrap_err();
+    assert!(
+        matches!(error, RunError::SamplesOverLimit { .. }),
+        "{error}"
+    );
 }

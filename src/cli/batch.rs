@@ -76,7 +76,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let results = batch::run_ordered(
         &jobs,
         threads,
-        |job| batch::convert(job, &args.out_dir, &conversion, &inputs, &opts),
+        |job| {
+            let inputs = inputs.for_model(&job.relative);
+            batch::convert(job, &args.out_dir, &conversion, &inputs, &opts)
+        },
         |i, r| progress.finished(&jobs[i], r),
     );
     progress.clear();

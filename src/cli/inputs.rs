@@ -9,8 +9,13 @@
 //!   `--range` spans mean +- 2 standard deviations, about 95% of the draws (default: mean 0,
 //!   standard deviation 1, i.e. `-2,2`).
 //!
-//! Symbolic input dims take sizes from `--dim NAME=SIZE`; an unset one is an error naming it, and
-//! so is a `--dim` no input uses (except in `batch`, whose models share the flags).
+//! Files and random data mix: an input no file gives is drawn at random, sized by the dims the files
+//! give and `--dim NAME=SIZE`, which also checks the files (a disagreement is an error). An unset
+//! dim is an error naming it, and so is a `--dim` no input uses (except in `batch`, whose models
+//! share the flags). `batch --inputs-dir DIR` takes each model's samples from its own subfolder
+//! when there is one: `DIR/PATH` (PATH: the model's path below the searched folder without
+//! `.onnx`), else `DIR/PARENT` (the folder holding it), else `DIR/STEM` (its file stem); without
+//! one, from `DIR` itself.
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -31,34 +36,35 @@ pub enum Dist {
 
 /// Where input samples come from.
 #[derive(Debug, Clone, clap::Args)]
-#[command(next_help_heading = "Inputs (random unless --input or --inputs-dir is given)")]
+#[command(next_help_heading = "Inputs (random where --input or --inputs-dir gives none)")]
 pub struct InputArgs {
     /// Feed input NAME from FILE (.npy, .npz or .pb); a bare .npz feeds every input it names.
     /// Repeat an input to give several samples.
     #[arg(long = "input", value_name = "NAME=FILE")]
     pub input: Vec<String>,
     /// Read samples from a folder: test_data_set_N/ subfolders, input_K.pb|.npy files, or
-    /// numbered .npz archives.
+    /// numbered .npz archives. In `batch`, a subfolder named after a model's file stem holds
+    /// that model's samples.
     #[arg(long, value_name = "DIR", conflicts_with = "input")]
     pub inputs_dir: Option<PathBuf>,
     /// Seed of the random inputs [default: 0].
-    #[arg(long, value_name = "N", conflicts_with_all = ["input", "inputs_dir"])]
+    #[arg(long, value_name = "N")]
     pub seed: Option<u64>,
     /// Distribution of the random inputs [default: normal].
-    #[arg(long, value_enum, conflicts_with_all = ["input", "inputs_dir"])]
+    #[arg(long, value_enum)]
     pub dist: Option<Dist>,
     /// Uniform: the bounds [LO, HI). Normal: mean (LO+HI)/2, standard deviation (HI-LO)/4
     /// [default: -1,1 uniform; -2,2 normal].
-    #[arg(long, value_name = "LO,HI", allow_hyphen_values = true,
-          conflicts_with_all = ["input", "inputs_dir"])]
+    #[arg(long, value_name = "LO,HI", allow_hyphen_values = true)]
     pub range: Option<String>,
     /// Number of random samples [default: 1].
     #[arg(long, value_name = "N", conflicts_with_all = ["input", "inputs_dir"])]
     pub samples: Option<usize>,
-    /// Size of a symbolic input dim for random inputs (repeatable).
-    #[arg(long = "dim", value_name = "NAME=SIZE", conflicts_with_all = ["input", "inputs_dir"])]
+    /// Size of a symbolic input dim (repeatable): for inputs drawn at random, and checked against
+    /// the files given.
+    #[arg(long = "dim", value_name = "NAME=SIZE")]
     pub dim: Vec<String>,
-    /// Refuse any input tensor with more elements than this.
+    /// Refuse samples holding more input elements than this, all samples together.
     #[arg(long, value_name = "N", default_value_t = DEFAULT_MAX_ELEMENTS)]
     pub max_elements: usize,
 }
@@ -78,10 +84,11 @@ impl InputArgs {
                 .collect::<Result<Vec<_>, _>>()?;
             Origin::Files(bindings)
         } else {
-            Origin::Random(self.random()?)
+            Origin::Random
         };
         Ok(InputSource {
             origin,
+            random: self.random()?,
             max_elements: self.max_elements,
             ignore_unused_dims,
         })

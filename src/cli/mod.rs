@@ -57,6 +57,9 @@ enum Command {
 /// Runs the command line and maps the outcome to an exit code; errors print as one line.
 pub fn main() -> ExitCode {
     std::panic::set_hook(Box::new(|info| {
+        if crate::run::catching_panics() {
+            return;
+        }
         let at = info
             .location()
             .map(|l| format!(" at {}:{}", l.file(), l.line()))

@@ -6,7 +6,7 @@ use std::collections::HashMap;
 use anyhow::{Context, Result};
 use ndarray::ArrayD;
 
-use crate::run::{DatumType, NamedTensor, Plan, Sample, Tensor, TractModel, to_f64_array};
+use crate::run::{Compiled, DatumType, NamedTensor, Sample, Tensor, TractModel, to_f64_array};
 
 /// The tensors of one run by ONNX name: the sample's inputs, the graph outputs and every
 /// requested intermediate.
@@ -22,7 +22,7 @@ pub fn run_samples(
     extra: &[String],
     what: &str,
 ) -> Result<Vec<Values>> {
-    let mut plans: Vec<(ShapeKey, Plan)> = Vec::new();
+    let mut plans: Vec<(ShapeKey, Compiled)> = Vec::new();
     let mut out = Vec::with_capacity(samples.len());
     for (k, sample) in samples.iter().enumerate() {
         let key: ShapeKey = sample

@@ -2,7 +2,7 @@
 //!
 //! Both plans are optimized by tract for the sample's shapes. Each runs `warmup` times, then the
 //! two run `runs` times interleaved (A B A B ...), so drift in machine load reaches both alike.
-//! Each run is timed with a monotonic clock around [`Plan::run`] (which copies the inputs in and
+//! Each run is timed with a monotonic clock around [`Compiled::run`] (which copies the inputs in and
 //! the outputs out, the same for both). Figures: median and the 10th-90th percentile spread
 //! (numpy's linear method) of each, and the ratio of medians rewritten / original. Latency is
 //! measured data: it varies between machines and runs.
@@ -14,7 +14,7 @@ use serde::Serialize;
 
 use super::stats::quantile;
 use crate::onnx::Model;
-use crate::run::{self, Plan, Sample, TractModel};
+use crate::run::{self, Compiled, Sample, TractModel};
 
 /// How many times to run.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -65,8 +65,8 @@ pub struct SiteLatency {
 
 /// Times two compiled plans, interleaved; returns the run times of each, in seconds.
 pub fn interleaved(
-    a: (&Plan, &Sample),
-    b: (&Plan, &Sample),
+    a: (&Compiled, &Sample),
+    b: (&Compiled, &Sample),
     opts: LatencyOptions,
 ) -> Result<(Vec<f64>, Vec<f64>)> {
     ensure!(opts.runs > 0, "latency needs at least one run");
@@ -74,7 +74,7 @@ pub fn interleaved(
         a.0.run(a.1)?;
         b.0.run(b.1)?;
     }
-    let time = |plan: &Plan, sample: &Sample| -> Result<f64> {
+    let time = |plan: &Compiled, sample: &Sample| -> Result<f64> {
         let start = Instant::now();
         let out = plan.run(sample)?;
         let elapsed = start.elapsed().as_secs_f64();
@@ -126,7 +126,7 @@ pub fn site(
     b: (&Model, &Sample),
     opts: LatencyOptions,
 ) -> Result<SiteLatency> {
-    let compile = |(model, sample): (&Model, &Sample)| -> Result<Plan> {
+    let compile = |(model, sample): (&Model, &Sample)| -> Result<Compiled> {
         let tract = run::prepare(&model.encode(), Some(model.dir()))?;
         Ok(tract.compile(sample, &[])?)
     };

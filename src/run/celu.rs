@@ -36,7 +36,7 @@ impl Expansion for Celu {
         inputs: &'p [TensorProxy],
         outputs: &'p [TensorProxy],
     ) -> InferenceResult {
-        super::framework::unary_rules(s, inputs, outputs)
+        super::unary::unary_rules(s, inputs, outputs)
     }
 
     fn wire(

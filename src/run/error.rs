@@ -2,6 +2,11 @@
 
 use std::path::PathBuf;
 
+use super::TRACT_VERSION;
+
+/// What a user can still do with a model tract cannot run.
+const STILL_WORKS: &str = "`scan` and `swap` do not run the model and still work on it";
+
 /// Everything that can go wrong while loading, feeding or running a model with tract.
 #[derive(Debug, thiserror::Error)]
 pub enum RunError {
@@ -17,10 +22,10 @@ pub enum RunError {
     )]
     ExternalDataWithoutFolder { tensor: String, location: String },
     /// The model has ops tract has no implementation for.
-    #[error("tract cannot run {}", .0.join(", "))]
+    #[error("tract {TRACT_VERSION} cannot run {}; {STILL_WORKS}", .0.join(", "))]
     UnsupportedOps(Vec<String>),
     /// tract failed at a stage; the message is tract's own, flattened to one line.
-    #[error("tract failed to {stage}: {message}")]
+    #[error("tract {TRACT_VERSION} failed to {stage}: {message}")]
     Tract {
         stage: &'static str,
         message: String,
@@ -56,7 +61,9 @@ pub enum RunError {
         second: String,
     },
     /// A symbolic dimension has no size.
-    #[error("input '{input}' axis {axis}: dimension '{dim}' has no size (set it with {dim}=SIZE)")]
+    #[error(
+        "input '{input}' axis {axis}: dimension '{dim}' has no size (set it with --dim {dim}=SIZE)"
+    )]
     UnsetDim {
         input: String,
         axis: usize,
@@ -77,8 +84,21 @@ pub enum RunError {
         elements: u128,
         limit: usize,
     },
+    /// All samples together would exceed the element-count limit.
+    #[error("the samples would hold {elements} input elements together, over the limit of {limit}")]
+    SamplesOverLimit { elements: u128, limit: usize },
+    /// A run would need more memory than the ceiling allows.
+    #[error("{what} would take {}, over the memory ceiling of {}", bytes_text(*.bytes), bytes_text(*.ceiling as u128))]
+    OverMemory {
+        what: String,
+        bytes: u128,
+        ceiling: u64,
+    },
+    /// A value given for an input cannot be converted to the input's element type.
+    #[error("input '{name}': {reason}")]
+    Conversion { name: String, reason: String },
     /// tract failed at a stage on a node it names; `node` is that node as the ONNX file has it.
-    #[error("tract failed to {stage} at {node}: {message}")]
+    #[error("tract {TRACT_VERSION} failed to {stage} at {node}: {message}; {STILL_WORKS}")]
     NodeFailed {
         stage: &'static str,
         node: String,
@@ -127,24 +147,18 @@ impl RunError {
     }
 }
 
-/// Runs `f`, turning a tract error or a panic inside tract into [`RunError::Tract`].
-pub(crate) fn guarded<T>(
-    stage: &'static str,
-    f: impl FnOnce() -> anyhow::Result<T>,
-) -> Result<T, RunError> {
-    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)) {
-        Ok(Ok(value)) => Ok(value),
-        Ok(Err(error)) => Err(RunError::tract(stage, &error)),
-        Err(panic) => {
-            let message = panic
-                .downcast_ref::<String>()
-                .cloned()
-                .or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string()))
-                .unwrap_or_else(|| "internal panic".to_string());
-            Err(RunError::Tract {
-                stage,
-                message: format!("tract panicked: {message}"),
-            })
-        }
+/// A byte count in binary units, e.g. `256.0 GiB`.
+fn bytes_text(bytes: u128) -> String {
+    const UNITS: [&str; 7] = ["bytes", "KiB", "MiB", "GiB", "TiB", "PiB", "EiB"];
+    let mut value = bytes as f64;
+    let mut unit = 0;
+    while value >= 1024.0 && unit + 1 < UNITS.len() {
+        value /= 1024.0;
+        unit += 1;
+    }
+    if unit == 0 {
+        format!("{bytes} bytes")
+    } else {
+        format!("{value:.1} {}", UNITS[unit])
     }
 }

@@ -1,18 +1,25 @@
 //! Typing, optimizing and running a loaded model on concrete inputs.
+//!
+//! Compiling fixes every symbolic dim to the size the sample gives it ([`super::symbols`]), types
+//! the model, checks the memory ceiling ([`super::ceiling`]), then optimizes it.
 
 use std::collections::HashSet;
 use std::sync::Arc;
 
 use tract_onnx::prelude::*;
 
-use super::error::guarded;
+use super::blame::panicking_node;
+use super::guard::{Failure, catch, guarded};
 use super::names::NodeOrigins;
 use super::signature::bind;
-use super::{NamedTensor, RunError, TractModel};
+use super::{NamedTensor, RunError, TractModel, ceiling, symbols};
+
+/// The stage of typing, as errors name it.
+const TYPE: &str = "type the model";
 
 /// A model typed and optimized for one set of input types and shapes, ready to run many times.
 #[derive(Debug, Clone)]
-pub struct Plan {
+pub struct Compiled {
     runnable: Arc<TypedRunnableModel>,
     inputs: Vec<super::InputSpec>,
     input_shapes: Vec<Vec<usize>>,
@@ -29,13 +36,8 @@ impl TractModel {
         &self,
         sample: &[NamedTensor],
         extra_outputs: &[String],
-    ) -> Result<Plan, RunError> {
+    ) -> Result<Compiled, RunError> {
         let bound = bind(&self.inputs, sample)?;
-        let mut model = self.model.clone();
-        for (ix, tensor) in bound.iter().enumerate() {
-            let fact = InferenceFact::dt_shape(tensor.datum_type(), tensor.shape());
-            guarded("set an input fact", || model.set_input_fact(ix, fact))?;
-        }
         let mut outputs = self.outputs.clone();
         let mut listed: HashSet<String> = outputs.iter().cloned().collect();
         for extra in extra_outputs {
@@ -52,14 +54,19 @@ impl TractModel {
                     .ok_or_else(|| RunError::UnknownTensor(name.clone()))
             })
             .collect::<Result<Vec<_>, _>>()?;
-        guarded("select outputs", || model.select_output_outlets(&outlets))?;
+        let model = self.fixed(&bound, &outlets)?;
+        let typed = match catch(|| model.into_typed()) {
+            Ok(typed) => typed,
+            Err(Failure::Panic(message)) => return Err(self.blame(&bound, &outlets, message)),
+            Err(failure) => return Err(self.origins.attribute(failure.at(TYPE))),
+        };
+        ceiling::check(&typed, self.memory_ceiling, &self.origins)?;
         let attribute = |e| self.origins.attribute(e);
-        let typed = guarded("type the model", || model.into_typed()).map_err(attribute)?;
         let optimized =
             guarded("optimize the model", || typed.into_optimized()).map_err(attribute)?;
         let runnable =
             guarded("plan the model", || optimized.into_runnable()).map_err(attribute)?;
-        Ok(Plan {
+        Ok(Compiled {
             runnable,
             inputs: self.inputs.clone(),
             input_shapes: bound.iter().map(|t| t.shape().to_vec()).collect(),
@@ -68,7 +75,37 @@ impl TractModel {
         })
     }
 
-    /// Compiles for `sample` and runs it once; see [`TractModel::compile`] and [`Plan::run`].
+    /// The model with every dim fixed by the tensors `bound` to its inputs and `outlets` as its
+    /// outputs, ready to type.
+    fn fixed(&self, bound: &[&Tensor], outlets: &[OutletId]) -> Result<InferenceModel, RunError> {
+        let mut model = self.model.clone();
+        let sizes = symbols::learn(&model, bound)?;
+        symbols::concretise(&mut model, &sizes);
+        for (ix, tensor) in bound.iter().enumerate() {
+            let fact = InferenceFact::dt_shape(tensor.datum_type(), tensor.shape());
+            guarded("set an input fact", || model.set_input_fact(ix, fact))?;
+        }
+        guarded("select outputs", || model.select_output_outlets(outlets))?;
+        Ok(model)
+    }
+
+    /// The error for a panic while typing, naming the node it came from when one is found.
+    fn blame(&self, bound: &[&Tensor], outlets: &[OutletId], message: String) -> RunError {
+        let message = format!("tract panicked: {message}");
+        match self.fixed(bound, outlets).ok().and_then(panicking_node) {
+            Some(node) => RunError::NodeFailed {
+                stage: TYPE,
+                node: self.origins.describe(&node),
+                message,
+            },
+            None => RunError::Tract {
+                stage: TYPE,
+                message,
+            },
+        }
+    }
+
+    /// Compiles for `sample` and runs it once; see [`TractModel::compile`] and [`Compiled::run`].
     pub fn run(
         &self,
         sample: &[NamedTensor],
@@ -78,13 +115,13 @@ impl TractModel {
     }
 }
 
-impl Plan {
-    /// The names of the tensors [`Plan::run`] returns, in order.
+impl Compiled {
+    /// The names of the tensors [`Compiled::run`] returns, in order.
     pub fn output_names(&self) -> &[String] {
         &self.outputs
     }
 
-    /// Runs on `sample`, which must have the types and shapes the plan was compiled for.
+    /// Runs on `sample`, which must have the types and shapes it was compiled for.
     /// Returns the graph outputs then the extra outputs, in their own element types.
     pub fn run(&self, sample: &[NamedTensor]) -> Result<Vec<NamedTensor>, RunError> {
         let bound = bind(&self.inputs, sample)?;
@@ -93,7 +130,7 @@ impl Plan {
             if tensor.shape() != shape.as_slice() {
                 return Err(RunError::ShapeMismatch {
                     name: spec.name.clone(),
-                    expected: format!("{shape:?} (the shape this plan was compiled for)"),
+                    expected: format!("{shape:?} (the shape the model was compiled for)"),
                     found: tensor.shape().to_vec(),
                 });
             }

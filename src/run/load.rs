@@ -10,8 +10,9 @@ use tract_onnx::pb::{GraphProto, ModelProto};
 use tract_onnx::prelude::{InferenceModel, OutletId};
 use tract_onnx::tract_core::ops::unimpl::UnimplementedOp;
 
-use super::error::guarded;
-use super::names::{NodeOrigin, NodeOrigins, make_node_names_unique};
+use super::ceiling::DEFAULT_MEMORY_CEILING;
+use super::guard::guarded;
+use super::names::{NodeOrigins, make_node_names_unique};
 use super::signature::{InputSpec, read_inputs};
 use super::{RunError, framework};
 
@@ -23,8 +24,8 @@ pub struct TractModel {
     pub(crate) outlets: HashMap<String, OutletId>,
     pub(crate) inputs: Vec<InputSpec>,
     pub(crate) outputs: Vec<String>,
-    pub(crate) node_outputs: Vec<String>,
     pub(crate) origins: Arc<NodeOrigins>,
+    pub(crate) memory_ceiling: u64,
 }
 
 /// Decodes `model_bytes` and loads them into tract. `model_dir` is the folder external data is
@@ -42,11 +43,6 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
     let origins = make_node_names_unique(graph);
     let inputs = read_inputs(graph)?;
     let outputs = graph.output.iter().map(|o| o.name.clone()).collect();
-    let node_outputs = graph
-        .node
-        .iter()
-        .flat_map(|n| n.output.iter().filter(|o| !o.is_empty()).cloned())
-        .collect();
     let dir = model_dir
         .map(|d| {
             d.to_str()
@@ -67,11 +63,7 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
         .nodes()
         .iter()
         .filter(|node| node.op_is::<UnimplementedOp>())
-        .map(|node| {
-            origins
-                .find(&node.name)
-                .map_or_else(|| node.name.clone(), NodeOrigin::to_string)
-        })
+        .map(|node| origins.describe(&node.name))
         .collect();
     if !unsupported.is_empty() {
         return Err(RunError::UnsupportedOps(unsupported));
@@ -81,8 +73,8 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
         outlets: parsed.outlets_by_name,
         inputs,
         outputs,
-        node_outputs,
         origins: Arc::new(origins),
+        memory_ceiling: DEFAULT_MEMORY_CEILING,
     })
 }
 
@@ -128,9 +120,12 @@ impl TractModel {
         &self.outputs
     }
 
-    /// Every tensor produced by a top-level node, in node order: the names that can be requested
-    /// as extra outputs.
-    pub fn node_output_names(&self) -> &[String] {
-        &self.node_outputs
+    /// Sets the memory ceiling of every compile (default [`DEFAULT_MEMORY_CEILING`]): a model
+    /// whose values would take more bytes, one of them or all together, is refused before it runs.
+    pub fn with_memory_ceiling(self, bytes: u64) -> Self {
+        TractModel {
+            memory_ceiling: bytes,
+            ..self
+        }
     }
 }

@@ -48,6 +48,12 @@ impl NodeOrigins {
         }
     }
 
+    /// The ONNX node tract node `name` stands for, as text; `name` itself when none is found.
+    pub(crate) fn describe(&self, name: &str) -> String {
+        self.find(name)
+            .map_or_else(|| format!("node '{name}'"), NodeOrigin::to_string)
+    }
+
     /// Names the ONNX node a tract error is about, when tract's message cites one
     /// (`#12 "name" Op`).
     pub(crate) fn attribute(&self, error: RunError) -> RunError {

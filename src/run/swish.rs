@@ -40,7 +40,7 @@ impl Expansion for Swish {
         inputs: &'p [TensorProxy],
         outputs: &'p [TensorProxy],
     ) -> InferenceResult {
-        super::framework::unary_rules(s, inputs, outputs)
+        super::unary::unary_rules(s, inputs, outputs)
     }
 
     fn wire(

@@ -47,7 +47,7 @@ pub(super) fn layout(dir: &Path) -> Result<Layout, RunError> {
     }
     Err(RunError::file(
         dir,
-        "no samples found (expected test_data_set_N folders, input_K.pb/.npy files or numbered .npz archives)",
+        "no samples found (expected test_data_set_N folders, input_K.pb/.npy files, numbered .npz archives or, in batch, a subfolder per model)",
     ))
 }
 

@@ -6,7 +6,7 @@ use prost::Message;
 use tract_onnx::pb::TensorProto;
 use tract_onnx::pb::tensor_proto::DataType;
 
-use super::super::error::guarded;
+use super::super::guard::guarded;
 use super::super::signature::datum_type;
 use super::super::{NamedTensor, RunError};
 

@@ -8,7 +8,8 @@ use rand::{Rng, SeedableRng};
 use rand_distr::{Distribution as _, Normal, Uniform};
 use tract_onnx::prelude::{Datum, DatumType, Tensor, f16};
 
-use super::super::{Dim, InputSpec, NamedTensor, RunError, Sample};
+use super::super::{Dim, InputSpec, NamedTensor, RunError};
+use super::Budget;
 
 /// The distribution random inputs are drawn from.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -26,9 +27,9 @@ pub struct RandomInputs {
     pub seed: u64,
     /// The distribution of every element.
     pub distribution: Distribution,
-    /// How many samples.
+    /// How many samples when every input is random (files set the count otherwise).
     pub samples: usize,
-    /// Sizes of symbolic dims, by `dim_param` name.
+    /// Sizes of symbolic dims, by `dim_param` name; files given with them must agree.
     pub dims: BTreeMap<String, usize>,
 }
 
@@ -77,31 +78,89 @@ impl Sampler {
     }
 }
 
-/// Generates `spec.samples` samples for `inputs`.
-pub(super) fn generate(
+/// Completes each sample with the inputs it lacks, drawn from one generator seeded with
+/// `spec.seed`, in model order, sample after sample. Dims take sizes from `spec.dims` and from the
+/// tensors the sample has, which must agree. Returns the samples and the inputs drawn.
+pub(super) fn complete(
     inputs: &[InputSpec],
+    given: Vec<Vec<NamedTensor>>,
     spec: &RandomInputs,
-    max_elements: usize,
-) -> Result<Vec<Sample>, RunError> {
+    budget: &mut Budget,
+) -> Result<(Vec<Vec<NamedTensor>>, Vec<String>), RunError> {
     check_dim_names(inputs, &spec.dims)?;
-    let shapes = inputs
-        .iter()
-        .map(|input| resolve_shape(input, &spec.dims, max_elements))
-        .collect::<Result<Vec<_>, _>>()?;
+    let mut drawn: Vec<String> = Vec::new();
+    let mut plans = Vec::with_capacity(given.len());
+    for sample in &given {
+        let sizes = dim_sizes(inputs, sample, &spec.dims)?;
+        let mut plan = Vec::new();
+        for input in inputs {
+            if sample.iter().any(|t| t.name == input.name) {
+                continue;
+            }
+            let shape = resolve_shape(input, &sizes, budget.limit)?;
+            budget.take(shape.iter().map(|&d| d as u128).product())?;
+            if !drawn.contains(&input.name) {
+                drawn.push(input.name.clone());
+            }
+            plan.push((input, shape));
+        }
+        plans.push(plan);
+    }
     let sampler = Sampler::new(spec.distribution)?;
     let mut rng = StdRng::seed_from_u64(spec.seed);
-    (0..spec.samples)
-        .map(|_| {
-            inputs
-                .iter()
-                .zip(&shapes)
-                .map(|(input, shape)| {
-                    let tensor = fill(input, shape, &sampler, &mut rng)?;
-                    Ok(NamedTensor::new(&input.name, tensor))
-                })
-                .collect()
+    let samples = given
+        .into_iter()
+        .zip(plans)
+        .map(|(mut sample, plan)| {
+            for (input, shape) in plan {
+                let tensor = fill(input, &shape, &sampler, &mut rng)?;
+                sample.push(NamedTensor::new(&input.name, tensor));
+            }
+            Ok(sample)
         })
-        .collect()
+        .collect::<Result<_, RunError>>()?;
+    Ok((samples, drawn))
+}
+
+/// The sizes of the named dims: `set` ones, then those the tensors of `sample` give, refusing a
+/// size that disagrees with an earlier one.
+fn dim_sizes(
+    inputs: &[InputSpec],
+    sample: &[NamedTensor],
+    set: &BTreeMap<String, usize>,
+) -> Result<BTreeMap<String, usize>, RunError> {
+    let mut sizes = set.clone();
+    let mut origin: BTreeMap<String, String> = set
+        .keys()
+        .map(|k| (k.clone(), "(--dim)".to_string()))
+        .collect();
+    for tensor in sample {
+        let Some(dims) = inputs
+            .iter()
+            .find(|i| i.name == tensor.name)
+            .and_then(|i| i.dims.as_ref())
+        else {
+            continue;
+        };
+        for (dim, &size) in dims.iter().zip(tensor.tensor.shape()) {
+            let Dim::Named(name) = dim else { continue };
+            match sizes.get(name) {
+                Some(&known) if known != size => {
+                    return Err(RunError::DimConflict {
+                        dim: name.clone(),
+                        first: format!("{known} {}", origin[name]),
+                        second: format!("{size} in input '{}'", tensor.name),
+                    });
+                }
+                Some(_) => {}
+                None => {
+                    sizes.insert(name.clone(), size);
+                    origin.insert(name.clone(), format!("in input '{}'", tensor.name));
+                }
+            }
+        }
+    }
+    Ok(sizes)
 }
 
 /// The names of the symbolic dims the inputs use, in input order (repeats kept).
@@ -121,7 +180,9 @@ pub fn symbolic_dims(inputs: &[InputSpec]) -> Vec<&str> {
 
 /// Refuses a set dim that no input uses (most likely a typo).
 fn check_dim_names(inputs: &[InputSpec], dims: &BTreeMap<String, usize>) -> Result<(), RunError> {
-    let used = symbolic_dims(inputs);
+    let mut used = symbolic_dims(inputs);
+    used.sort_unstable();
+    used.dedup();
     match dims.keys().find(|k| !used.contains(&k.as_str())) {
         Some(unused) => Err(RunError::BadArgument {
             text: format!("{unused}=SIZE"),
@@ -139,7 +200,7 @@ fn check_dim_names(inputs: &[InputSpec], dims: &BTreeMap<String, usize>) -> Resu
 }
 
 /// The concrete shape of `input`, refusing unset dims and shapes over the limit.
-pub(super) fn resolve_shape(
+fn resolve_shape(
     input: &InputSpec,
     dims: &BTreeMap<String, usize>,
     max_elements: usize,

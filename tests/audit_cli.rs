@@ -54,7 +54,28 @@ fn audit_reports_plan_and_drift_and_writes_nothing_without_o() {
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
     let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     let keys: Vec<&str> = v.as_object().unwrap().keys().map(String::as_str).collect();
-    assert_eq!(keys, ["plan", "drift"]);
+    assert_eq!(
+        keys,
+        [
+            "actswap",
+            "model",
+            "converted_for",
+            "budget",
+            "budget_source",
+            "inputs",
+            "plan",
+            "readiness",
+            "drift",
+            "verdict",
+            "reasons"
+        ]
+    );
+    assert_eq!(v["verdict"], "pass");
+    assert_eq!(v["reasons"], serde_json::json!([]));
+    // --to alone: the documented default budget, no target to check the whole model against.
+    assert_eq!(v["budget_source"], "default");
+    assert_eq!(v["budget"]["min_cosine"], 0.999);
+    assert!(v["readiness"].is_null());
     assert_eq!(v["drift"]["within_budget"], true);
     assert_eq!(v["drift"]["samples"], 2);
     // The silu site went to hard-swish: its local drift is real and within the published bound.
@@ -110,7 +131,11 @@ fn audit_with_o_writes_what_swap_writes() {
         "{text}"
     );
     assert!(text.contains("caution: Drift measured on sample inputs certifies nothing"));
-    assert!(text.contains("\naudit: pass\n"), "{text}");
+    assert!(text.ends_with("\nverdict: pass\n"), "{text}");
+    assert_eq!(
+        text.matches("verdict").count() - text.matches("this verdict").count(),
+        1
+    );
 
     let out = actswap(
         &[
@@ -160,8 +185,14 @@ fn audit_over_budget_exits_1_with_offenders_first() {
     // Offending sites come first in the site list.
     assert_eq!(v["drift"]["sites"][0]["output"], offenders[0]["name"]);
     assert!(v["drift"]["latency"].is_null());
-    // -o still writes the rewritten model: the verdict is for the engineer to act on.
+    assert_eq!(v["verdict"], "over_budget");
+    // Not written: a model that fails is written only when asked.
+    assert!(!out_file.exists());
+    assert!(v.get("written").is_none());
+    let out = actswap(&[args.as_slice(), &["--write-failing"]].concat());
+    assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
     assert!(out_file.exists());
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(v["written"], path(&out_file));
 }
 
@@ -188,6 +219,9 @@ fn audit_with_an_unserved_site_exits_1() {
     assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
     let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(v["drift"]["within_budget"], true);
+    // The converted model runs on the target (the sites it cannot serve stay as they were, and
+    // their Sigmoid is refused too), so the one verdict is the first failing reason.
+    assert_eq!(v["verdict"], "not_ready");
     let unserved = v["plan"]["sites"]
         .as_array()
         .unwrap()

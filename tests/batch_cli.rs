@@ -47,11 +47,13 @@ fn model_folder(root: &Path) -> PathBuf {
     dir
 }
 
+/// Runs a batch that writes every converted model, whatever its verdict, to compare with
+/// `swap`'s.
 fn batch(models: &Path, out: &Path, extra: &[&str]) -> Output {
     let args = [
         &["batch", path(models), "-o", path(out)][..],
         &CONVERSION,
-        &["--dim", "batch=1", "--no-latency"],
+        &["--dim", "batch=1", "--no-latency", "--write-failing"],
         extra,
     ]
     .concat();
@@ -212,6 +214,8 @@ fn exit_codes_follow_the_worst_model() {
     let run = actswap(&[&base[..], &["-o", path(&out), "--site-max-abs", "1e-7"]].concat());
     assert_eq!(run.status.code(), Some(1), "{}", stderr(&run));
     assert!(String::from_utf8_lossy(&run.stdout).contains("over_budget"));
+    // A model that does not pass is not written unless asked.
+    assert!(!out.join("a.onnx").exists() && !out.join("b.onnx").exists());
 
     // Batch-level errors: no model found, two models written to one place, the output folder
     // being the input folder.

@@ -63,7 +63,10 @@ fn self_drift_exits_0_with_every_documented_key() {
             "budgets",
             "offenders",
             "within_budget",
-            "caution"
+            "caution",
+            "budget_source",
+            "verdict",
+            "reasons"
         ]
     );
     let site = &v["sites"][0];
@@ -139,7 +142,7 @@ fn a_budget_tighter_than_the_drift_exits_1() {
     assert_eq!(out.status.code(), Some(1));
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("over budget (1):"), "{text}");
-    assert!(text.contains("verdict: OVER BUDGET"), "{text}");
+    assert!(text.contains("\nverdict: over_budget: "), "{text}");
     assert!(text.contains("caution: Drift measured on sample inputs certifies nothing"));
 
     let out = drift(&[&base[..], &["--max-abs", "1e-9"]].concat());

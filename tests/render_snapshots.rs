@@ -52,8 +52,7 @@ fn audit_plan_drift_and_html() {
     insta::assert_snapshot!("drift_table", six_digits(&drift_table::render(&a.drift)));
     let section = ModelSection {
         name: model.display().to_string(),
-        plan: Some(&a.plan),
-        drift: Some(&a.drift),
+        audit: Some(&a),
         error: None,
     };
     let html = render("actswap audit: orchard-grader.onnx", &[section]);

@@ -11,12 +11,11 @@ mod measure_support;
 
 use std::process::{Command, Output};
 
-use actswap::audit::{self, Conversion, InputSource, Origin, Verdict, summarize};
-use actswap::measure::{CAUTION, CompareOptions, DriftReport};
+use actswap::audit::{self, Audit, Conversion, InputSource, Origin, Verdict, summarize};
+use actswap::measure::{CAUTION, CompareOptions};
 use actswap::onnx::builder::{Dim, model, node, opset, value};
 use actswap::onnx::proto::{GraphProto, tensor_proto::DataType};
 use actswap::onnx::{Model, SaveOptions};
-use actswap::plan::Plan;
 use actswap::plan::request::Request;
 use actswap::report::html::{CURVE_POINTS, ModelSection, render};
 use actswap::run::inputs::{Binding, DEFAULT_MAX_ELEMENTS, RandomInputs};
@@ -157,13 +156,15 @@ fn audit_report_holds_a_plot_per_chart_and_swapped_kind_even_over_budget() {
         0,
         "no overview for one model"
     );
-    // An unserved site outranks drift in the verdict; the offenders are listed either way.
-    let verdict = if json["plan"]["unserved"].as_u64().unwrap() > 0 {
-        "unserved"
-    } else {
-        "over_budget"
-    };
+    // The badge is the one verdict (ops the target does not run and unserved sites outrank
+    // drift); the offenders are listed either way, and every failing reason.
+    let verdict = json["verdict"].as_str().unwrap();
+    assert_ne!(verdict, "pass");
     assert_eq!(count(&doc, &format!("h2 .verdict.{verdict}")), 1);
+    assert_eq!(
+        count(&doc, "ul.reasons li"),
+        json["reasons"].as_array().unwrap().len()
+    );
     let offenders = json["drift"]["offenders"].as_array().unwrap().len();
     assert!(offenders >= 1);
     assert_eq!(count(&doc, "ul.offenders li"), offenders);
@@ -259,7 +260,7 @@ fn an_error_before_measurement_writes_no_report() {
 }
 
 /// Audits a torch export on its own inputs through the library stage.
-fn library_audit(id: &str, to: &str) -> (Plan, DriftReport) {
+fn library_audit(id: &str, to: &str) -> Audit {
     let dir = fx::fixture_dir(id);
     let conversion = Conversion::new(vec![Request::parse(to).unwrap()], None, Vec::new()).unwrap();
     let inputs = InputSource {
@@ -275,14 +276,14 @@ fn library_audit(id: &str, to: &str) -> (Plan, DriftReport) {
         latency: None,
         ..CompareOptions::default()
     };
-    let a = audit::audit(&dir.join("model.onnx"), &conversion, &inputs, &opts).unwrap();
-    (a.plan, a.drift)
+    audit::audit(&dir.join("model.onnx"), &conversion, &inputs, &opts).unwrap()
 }
 
 #[test]
 fn many_models_get_an_overview_and_a_failed_one_its_error_line() {
-    let (plan, drift) = library_audit("pump-ts-op13", "gelu=gelu_tanh");
-    let summary = summarize(&plan, &drift);
+    let a = library_audit("pump-ts-op13", "gelu=gelu_tanh");
+    let (plan, drift) = (&a.plan, &a.drift);
+    let summary = summarize(plan, None, drift);
     assert_eq!(summary.rewritten, plan.rewrites().count());
     assert!(summary.rewritten >= 1);
     assert_eq!(
@@ -303,14 +304,12 @@ fn many_models_get_an_overview_and_a_failed_one_its_error_line() {
     let sections = [
         ModelSection {
             name: "models/pump.onnx".into(),
-            plan: Some(&plan),
-            drift: Some(&drift),
+            audit: Some(&a),
             error: None,
         },
         ModelSection {
             name: "models/truncated.onnx".into(),
-            plan: None,
-            drift: None,
+            audit: None,
             error: Some("cannot decode 'models/truncated.onnx': unexpected end of data".into()),
         },
     ];

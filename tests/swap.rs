@@ -30,7 +30,7 @@ fn swap(model: &Model, requests: &[&str]) -> (Model, Plan) {
         .collect();
     let index = ModelIndex::build(model).unwrap();
     let sites = scan::scan(&index).sites;
-    let plan = Plan::build(sites, &Policy::Requests(&requests), index.main().opset(""));
+    let plan = Plan::build(sites, &Policy::requests(&requests), index.main().opset(""));
     let (out, _) = rewrite::apply(model, &index, &plan).unwrap();
     (out, plan)
 }
@@ -334,7 +334,7 @@ fn every_sample_converts_under_every_built_in_target() {
             let index = ModelIndex::build(&model).unwrap();
             let plan = Plan::build(
                 scan::scan(&index).sites,
-                &Policy::Target(&profile),
+                &Policy::target(&profile),
                 index.main().opset(""),
             );
             let (out, _) = rewrite::apply(&model, &index, &plan)

@@ -4,6 +4,7 @@ use std::path::Path;
 
 use anyhow::{Result, bail};
 
+use crate::measure::{Budgets, DEFAULT_BUDGET};
 use crate::onnx::ModelIndex;
 use crate::plan::profile::Profile;
 use crate::plan::request::Request;
@@ -36,6 +37,41 @@ impl Conversion {
         })
     }
 
+    /// The target profile, when one was given.
+    pub fn profile(&self) -> Option<&Profile> {
+        self.profile.as_ref()
+    }
+
+    /// How reports name what the model was converted for: the target's label and the requests.
+    pub fn describe(&self) -> String {
+        let requests: Vec<&str> = self.requests.iter().map(|r| r.text.as_str()).collect();
+        match (&self.profile, requests.is_empty()) {
+            (Some(p), true) => format!("target {}", p.label()),
+            (Some(p), false) => format!(
+                "target {}, refined by --to {}",
+                p.label(),
+                requests.join(" ")
+            ),
+            (None, _) => format!("--to {}", requests.join(" ")),
+        }
+    }
+
+    /// The drift budget that applies: each limit from `flags` where set, else from the target's
+    /// profile, else [`DEFAULT_BUDGET`] (a profile without a budget takes the default too); and
+    /// where it came from, in words.
+    pub fn budget(&self, flags: Budgets) -> (Budgets, String) {
+        let base = match &self.profile {
+            Some(p) if !p.budget.is_empty() => (p.budget, format!("profile {}", p.name)),
+            _ => (DEFAULT_BUDGET, "default".to_string()),
+        };
+        let source = if flags.is_empty() {
+            base.1
+        } else {
+            format!("flags, then {}", base.1)
+        };
+        (flags.or(base.0), source)
+    }
+
     /// Scans the model, keeps the sites asked for (refusing unknown ids) and plans them.
     pub fn plan(&self, index: &ModelIndex, model: &Path) -> Result<Plan> {
         let mut sites = scan::scan(index).sites;
@@ -50,9 +86,9 @@ impl Conversion {
             }
             sites.retain(|s| self.sites.contains(&s.id));
         }
-        let policy = match &self.profile {
-            Some(p) => Policy::Target(p),
-            None => Policy::Requests(&self.requests),
+        let policy = Policy {
+            requests: &self.requests,
+            target: self.profile.as_ref(),
         };
         Ok(Plan::build(sites, &policy, index.main().opset("")))
     }

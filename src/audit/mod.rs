@@ -5,15 +5,19 @@
 
 mod conversion;
 pub mod inputs;
+pub mod readiness;
 pub mod summary;
 
 use std::path::Path;
 
-use anyhow::{Context, Result};
+use anyhow::{Context, Result, bail};
 
 pub use conversion::Conversion;
 pub use inputs::{InputSource, Origin};
-pub use summary::{BatchReport, ModelRow, ModelSummary, Totals, Verdict, summarize};
+pub use readiness::{Readiness, RefusedOp};
+pub use summary::{
+    BatchContext, BatchReport, Judgement, ModelRow, ModelSummary, Totals, Verdict, summarize,
+};
 
 use crate::measure::{self, CompareOptions, DriftReport, SitePair};
 use crate::onnx::{Model, ModelIndex};
@@ -21,22 +25,34 @@ use crate::plan::Plan;
 use crate::rewrite::{self, Applied};
 use crate::run;
 
-/// One model scanned, planned, rewritten in memory and measured.
+/// One model scanned, planned, rewritten in memory, checked against its target and measured.
 pub struct Audit {
     pub plan: Plan,
     pub rewritten: Model,
     pub applied: Vec<Applied>,
+    /// The converted model against the target; `None` without a target.
+    pub readiness: Option<Readiness>,
     pub drift: DriftReport,
+    /// What the model was converted for, in words.
+    pub conversion: String,
+    /// Where the budget applied came from.
+    pub budget_source: String,
 }
 
 impl Audit {
     /// The audit in a few figures, with its verdict.
     pub fn summary(&self) -> ModelSummary {
-        summarize(&self.plan, &self.drift)
+        summarize(&self.plan, self.readiness.as_ref(), &self.drift)
+    }
+
+    /// The verdict and every failing reason.
+    pub fn judgement(&self) -> Judgement {
+        Judgement::of(Some(&self.plan), self.readiness.as_ref(), Some(&self.drift))
     }
 }
 
-/// Audits the model at `path`.
+/// Audits the model at `path`; the budget of `opts` holds the limits given by flags, the rest
+/// come from the conversion ([`Conversion::budget`]).
 pub fn audit(
     path: &Path,
     conversion: &Conversion,
@@ -45,17 +61,35 @@ pub fn audit(
 ) -> Result<Audit> {
     let model = Model::load(path)?;
     let index = ModelIndex::build(&model).with_context(|| format!("'{}'", path.display()))?;
+    let main = index.main();
+    if main.nodes.is_empty() || main.outputs.is_empty() {
+        bail!(
+            "'{}' has {}: there is nothing to convert or compare",
+            path.display(),
+            if main.outputs.is_empty() {
+                "no output"
+            } else {
+                "no node"
+            }
+        );
+    }
     let plan = conversion.plan(&index, path)?;
     let (rewritten, applied) = rewrite::apply(&model, &index, &plan)?;
     let specs =
         run::input_specs(&model.encode()).with_context(|| format!("'{}'", path.display()))?;
     let loaded = inputs.load(&specs)?;
+    let (budgets, budget_source) = conversion.budget(opts.budgets);
     let opts = CompareOptions {
         input_source: loaded.source,
+        budgets,
         ..opts.clone()
     };
     let new_index = ModelIndex::build(&rewritten).context("rewritten model")?;
-    let pairs: Vec<SitePair> = rewrite::counterparts(&plan, &applied, &index, &new_index)?
+    let counterparts = rewrite::counterparts(&plan, &applied, &index, &new_index)?;
+    let readiness = conversion
+        .profile()
+        .map(|p| readiness::check(&new_index, p, &counterparts));
+    let pairs: Vec<SitePair> = counterparts
         .into_iter()
         .zip(&plan.sites)
         .map(|(b, p)| SitePair {
@@ -76,6 +110,9 @@ pub fn audit(
         plan,
         rewritten,
         applied,
+        readiness,
         drift,
+        conversion: conversion.describe(),
+        budget_source,
     })
 }

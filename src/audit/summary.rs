@@ -6,15 +6,24 @@
 //!
 //! ```text
 //! {
+//!   "actswap": "0.1.0",                the version that wrote it
+//!   "converted_for": "target ...",     the target (name, or file and SHA-256) or the requests
+//!   "budget": {"max_abs", "max_rel", "min_cosine", "min_top1", "site_max_abs"}, null: not set
+//!   "budget_source": "profile piecewise-linear" | "default" | "flags, then ...",
+//!   "inputs": "...",                   the input options
 //!   "models": [{                       one per model, in discovery order
 //!     "output": "converted/a.onnx" | null,   where the converted model was written
 //!     "model", "sites", "rewritten", "kept", "unserved",
 //!     "worst_local_max_abs", "worst_local_site", "worst_propagated_max_abs",
-//!     "worst_output_max_abs", "lowest_output_cosine", "latency_ratio",
-//!     "within_budget", "verdict": "pass" | "over_budget" | "unserved" | "error",
+//!     "worst_output_max_abs", "lowest_output_cosine", "latency_ratio", "refused_ops",
+//!     "within_budget",
+//!     "verdict": "pass" | "error" | "not_ready" | "unserved" | "over_budget"
+//!                | "nothing_compared",
+//!     "reasons": ["..."],                  every failing reason, the verdict's first
 //!     "error" (verdict "error" only)
 //!   }],
-//!   "totals": {"models", "passed", "over_budget", "unserved", "errors",
+//!   "totals": {"models", "passed", "errors", "not_ready", "unserved", "over_budget",
+//!              "nothing_compared",
 //!              "sites", "rewritten", "kept", "unserved_sites",
 //!              "worst_local_max_abs", "worst_output_max_abs", "lowest_output_cosine"},
 //!   "caution": "..."
@@ -24,32 +33,146 @@
 
 use serde::Serialize;
 
+use super::readiness::Readiness;
 use crate::measure::{CAUTION, DriftReport};
 use crate::plan::{Action, Plan};
 
-/// What a model's audit comes to.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+/// What a model's audit comes to: pass, or the first failing reason in this order.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, PartialOrd, Ord)]
 #[serde(rename_all = "snake_case")]
 pub enum Verdict {
-    /// Every site served and every figure within budget.
+    /// Every node runs on the target, every site is served, every figure within budget, and
+    /// something was compared.
     Pass,
-    /// Some figure exceeded its budget (all sites were served).
-    OverBudget,
-    /// Some site has no form the target accepts; this outranks drift, since the model cannot
-    /// be deployed to the target as planned whatever its drift.
-    Unserved,
     /// The model could not be audited.
     Error,
+    /// The converted model holds ops the target does not run.
+    NotReady,
+    /// Some site has no form the target accepts.
+    Unserved,
+    /// Some figure exceeded its budget.
+    OverBudget,
+    /// No output element was compared, so no figure means anything.
+    NothingCompared,
 }
 
 impl Verdict {
-    /// The verdict as written in JSON and in the report (`pass`, `over_budget`, ...).
+    /// The verdict as written in JSON and in the report (`pass`, `not_ready`, ...).
     pub fn as_str(self) -> &'static str {
         match self {
             Verdict::Pass => "pass",
-            Verdict::OverBudget => "over_budget",
-            Verdict::Unserved => "unserved",
             Verdict::Error => "error",
+            Verdict::NotReady => "not_ready",
+            Verdict::Unserved => "unserved",
+            Verdict::OverBudget => "over_budget",
+            Verdict::NothingCompared => "nothing_compared",
+        }
+    }
+}
+
+/// A verdict and every failing reason behind it, the verdict's own first.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Judgement {
+    pub verdict: Verdict,
+    pub reasons: Vec<String>,
+}
+
+impl Judgement {
+    /// The verdict of what was found: ops the target does not run (`readiness`, when there is a
+    /// target), sites the plan could not serve, and the drift figures against their budget (when
+    /// measured). Decided here and nowhere else.
+    pub fn of(
+        plan: Option<&Plan>,
+        readiness: Option<&Readiness>,
+        drift: Option<&DriftReport>,
+    ) -> Judgement {
+        let mut failed: Vec<(Verdict, String)> = Vec::new();
+        if let Some(r) = readiness.filter(|r| !r.ready()) {
+            failed.push((
+                Verdict::NotReady,
+                format!(
+                    "the target does not run {} op type(s): {}",
+                    r.refused.len(),
+                    r.summary()
+                ),
+            ));
+        }
+        if let Some(plan) = plan {
+            let unserved: Vec<String> = plan
+                .sites
+                .iter()
+                .filter_map(|p| match &p.action {
+                    Action::Unserved { reason } => {
+                        Some(format!("{} ({}): {reason}", p.site.id, p.site.kind.id))
+                    }
+                    _ => None,
+                })
+                .collect();
+            if !unserved.is_empty() {
+                failed.push((
+                    Verdict::Unserved,
+                    format!(
+                        "{} site(s) have no form the target accepts: {}",
+                        unserved.len(),
+                        unserved.join("; ")
+                    ),
+                ));
+            }
+        }
+        if let Some(d) = drift {
+            if !d.offenders.is_empty() {
+                let what: Vec<String> = d
+                    .offenders
+                    .iter()
+                    .map(|o| match &o.site {
+                        Some(site) => format!("site {site}: {}", o.reason),
+                        None => format!("output '{}': {}", o.name, o.reason),
+                    })
+                    .collect();
+                failed.push((
+                    Verdict::OverBudget,
+                    format!("over budget: {}", what.join("; ")),
+                ));
+            }
+            let compared: u64 = d
+                .outputs
+                .iter()
+                .filter_map(|o| o.metrics.as_ref().map(|m| m.compared))
+                .sum();
+            if compared == 0 {
+                failed.push((
+                    Verdict::NothingCompared,
+                    "nothing compared: no output element was compared (no output, or outputs \
+                     with no element)"
+                        .into(),
+                ));
+            }
+        }
+        match failed.first() {
+            None => Judgement {
+                verdict: Verdict::Pass,
+                reasons: Vec::new(),
+            },
+            Some((verdict, _)) => Judgement {
+                verdict: *verdict,
+                reasons: failed.into_iter().map(|(_, r)| r).collect(),
+            },
+        }
+    }
+
+    /// The verdict of a model that could not be audited.
+    pub fn error(reason: &str) -> Judgement {
+        Judgement {
+            verdict: Verdict::Error,
+            reasons: vec![reason.to_string()],
+        }
+    }
+
+    /// The verdict and its first reason in one line: `pass`, `unserved: 1 site(s) ...`.
+    pub fn line(&self) -> String {
+        match self.reasons.first() {
+            None => self.verdict.as_str().to_string(),
+            Some(r) => format!("{}: {r}", self.verdict.as_str()),
         }
     }
 }
@@ -76,15 +199,19 @@ pub struct ModelSummary {
     pub lowest_output_cosine: Option<f64>,
     /// End-to-end latency, median rewritten / median original.
     pub latency_ratio: Option<f64>,
+    /// Op types of the converted model the target does not run (0 without a target).
+    pub refused_ops: usize,
     pub within_budget: bool,
     pub verdict: Verdict,
+    /// Every failing reason, the verdict's first.
+    pub reasons: Vec<String>,
     /// Why the model could not be audited (verdict `error` only).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub error: Option<String>,
 }
 
 /// The figures of one audited model.
-pub fn summarize(plan: &Plan, drift: &DriftReport) -> ModelSummary {
+pub fn summarize(plan: &Plan, readiness: Option<&Readiness>, drift: &DriftReport) -> ModelSummary {
     let count = |f: fn(&Action) -> bool| plan.sites.iter().filter(|p| f(&p.action)).count();
     let unserved = plan.unserved();
     let worst_local = worst(
@@ -94,13 +221,7 @@ pub fn summarize(plan: &Plan, drift: &DriftReport) -> ModelSummary {
             .filter_map(|s| s.local.as_ref().map(|d| (d.max_abs, &s.id_a))),
         |v, w| v > w,
     );
-    let verdict = if unserved > 0 {
-        Verdict::Unserved
-    } else if !drift.within_budget {
-        Verdict::OverBudget
-    } else {
-        Verdict::Pass
-    };
+    let judgement = Judgement::of(Some(plan), readiness, Some(drift));
     ModelSummary {
         model: drift.model_a.clone(),
         sites: plan.sites.len(),
@@ -134,8 +255,10 @@ pub fn summarize(plan: &Plan, drift: &DriftReport) -> ModelSummary {
         )
         .map(|w| w.0),
         latency_ratio: drift.latency.map(|l| l.ratio),
-        within_budget: drift.within_budget && unserved == 0,
-        verdict,
+        refused_ops: readiness.map_or(0, |r| r.refused.len()),
+        within_budget: drift.within_budget,
+        verdict: judgement.verdict,
+        reasons: judgement.reasons,
         error: None,
     }
 }
@@ -155,8 +278,10 @@ impl ModelSummary {
             worst_output_max_abs: None,
             lowest_output_cosine: None,
             latency_ratio: None,
+            refused_ops: 0,
             within_budget: false,
             verdict: Verdict::Error,
+            reasons: vec![error.to_string()],
             error: Some(error.to_string()),
         }
     }
@@ -191,10 +316,13 @@ pub struct ModelRow {
 pub struct Totals {
     pub models: usize,
     pub passed: usize,
-    pub over_budget: usize,
-    /// Models with at least one unserved site.
-    pub unserved: usize,
     pub errors: usize,
+    /// Models whose conversion holds ops the target does not run.
+    pub not_ready: usize,
+    /// Models with at least one unserved site (and every op run by the target).
+    pub unserved: usize,
+    pub over_budget: usize,
+    pub nothing_compared: usize,
     pub sites: usize,
     pub rewritten: usize,
     pub kept: usize,
@@ -204,16 +332,30 @@ pub struct Totals {
     pub lowest_output_cosine: Option<f64>,
 }
 
+/// What every model of a batch was judged against.
+#[derive(Debug, Clone, Serialize)]
+pub struct BatchContext {
+    /// The target or the requests, in words.
+    pub converted_for: String,
+    pub budget: crate::measure::Budgets,
+    pub budget_source: String,
+    /// The input options, in words (each model's own source is in its drift report).
+    pub inputs: String,
+}
+
 /// The summary of many models.
 #[derive(Debug, Clone, Serialize)]
 pub struct BatchReport {
+    pub actswap: &'static str,
+    #[serde(flatten)]
+    pub context: BatchContext,
     pub models: Vec<ModelRow>,
     pub totals: Totals,
     pub caution: &'static str,
 }
 
 impl BatchReport {
-    pub fn new(models: Vec<ModelRow>) -> BatchReport {
+    pub fn new(context: BatchContext, models: Vec<ModelRow>) -> BatchReport {
         let mut t = Totals {
             models: models.len(),
             ..Totals::default()
@@ -222,9 +364,11 @@ impl BatchReport {
             let s = &m.summary;
             match s.verdict {
                 Verdict::Pass => t.passed += 1,
-                Verdict::OverBudget => t.over_budget += 1,
-                Verdict::Unserved => t.unserved += 1,
                 Verdict::Error => t.errors += 1,
+                Verdict::NotReady => t.not_ready += 1,
+                Verdict::Unserved => t.unserved += 1,
+                Verdict::OverBudget => t.over_budget += 1,
+                Verdict::NothingCompared => t.nothing_compared += 1,
             }
             t.sites += s.sites;
             t.rewritten += s.rewritten;
@@ -242,6 +386,8 @@ impl BatchReport {
         t.worst_output_max_abs = figure(|s| s.worst_output_max_abs, |v, w| v > w);
         t.lowest_output_cosine = figure(|s| s.lowest_output_cosine, |v, w| v < w);
         BatchReport {
+            actswap: env!("CARGO_PKG_VERSION"),
+            context,
             models,
             totals: t,
             caution: CAUTION,
@@ -253,19 +399,14 @@ impl BatchReport {
         serde_json::to_value(self).expect("a batch report serializes")
     }
 
-    /// The worst verdict of the batch, for its exit code: an error, else a model that did not
-    /// pass, else none.
+    /// The worst verdict of the batch, for its exit code: the first failing one in the order
+    /// of [`Verdict`] (an error first), else pass.
     pub fn worst_verdict(&self) -> Verdict {
-        if self.totals.errors > 0 {
-            Verdict::Error
-        } else if self.totals.passed < self.totals.models {
-            self.models
-                .iter()
-                .map(|m| m.summary.verdict)
-                .find(|v| *v != Verdict::Pass)
-                .unwrap_or(Verdict::Pass)
-        } else {
-            Verdict::Pass
-        }
+        self.models
+            .iter()
+            .map(|m| m.summary.verdict)
+            .filter(|v| *v != Verdict::Pass)
+            .min()
+            .unwrap_or(Verdict::Pass)
     }
 }

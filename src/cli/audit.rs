@@ -7,39 +7,49 @@ use std::process::ExitCode;
 
 use anyhow::Result;
 
-use crate::audit::{self, Audit, Verdict};
+use crate::audit;
 use crate::onnx::SaveOptions;
 use crate::onnx::model::write_atomic;
+use crate::report::footer::{self, Judged};
 use crate::report::html::{self, ModelSection};
 use crate::report::{drift_table, plan_table};
 
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
 use super::plan_args::PlanArgs;
-use super::{EXIT_OVER_BUDGET, output};
+use super::{exit_code, output};
 
 #[derive(Debug, clap::Args)]
 #[command(
     about = "Convert a model for a target and prove the swap: drift per site and output, latency",
-    after_help = "Examples:\n  actswap audit sample-models/orchard-grader.onnx --target piecewise-linear --dim batch=1\n  actswap audit model.onnx --to silu=hard_swish --input image=batch.npy --max-abs 1e-2 -o model.fast.onnx\n  actswap audit model.onnx --target core-opset13 --samples 8 --json > audit.json\n  actswap audit model.onnx --target piecewise-linear --report audit.html\n\nExit codes: 0 within budget, 1 over budget or unserved sites, 2 error."
+    long_about = "Scan, plan and convert the model in memory, check that the target runs every node \
+of the converted model, run both models with tract and report drift and latency per site and per \
+output, against the target's budget (or the flags'). The last line is the one verdict: pass, or \
+the first failing reason among error, ops the target does not run (not_ready), unserved sites, \
+over budget and nothing compared. Drift on sample inputs certifies nothing for safety-relevant \
+uses: validate as your domain requires.",
+    after_help = "Examples:\n  actswap audit sample-models/orchard-grader.onnx --target piecewise-linear --dim batch=1\n  actswap audit model.onnx --to silu=hard_swish --input image=batch.npy --max-abs 1e-2 -o model.fast.onnx\n  actswap audit model.onnx --target core-opset13 --samples 8 --json > audit.json\n  actswap audit model.onnx --target piecewise-linear --report audit.html\n\nExit codes: 0 pass, 1 any other verdict, 2 error."
 )]
 pub struct Args {
     /// The ONNX model file (never modified).
     model: PathBuf,
     #[command(flatten)]
     plan: PlanArgs,
-    /// Also write the rewritten model here.
+    /// Also write the converted model here, when the verdict is pass.
     #[arg(short = 'o', long = "output", value_name = "OUT")]
     output: Option<PathBuf>,
+    /// Write the converted model with -o whatever the verdict.
+    #[arg(long, requires = "output")]
+    write_failing: bool,
     #[command(flatten)]
     inputs: InputArgs,
     #[command(flatten)]
     measure: MeasureArgs,
-    /// Print JSON instead of text: {"plan": ..., "drift": ...}.
+    /// Print JSON instead of text (plan, readiness, drift, verdict and reasons).
     #[arg(long, help_heading = "Output")]
     json: bool,
     /// Also write a self-contained HTML report here (site table, drift and latency charts, a
-    /// plot per swapped kind, output metrics), within budget or not.
+    /// plot per swapped kind, output metrics), whatever the verdict.
     #[arg(long, value_name = "FILE.html", help_heading = "Output")]
     report: Option<PathBuf>,
 }
@@ -49,23 +59,39 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let conversion = args.plan.conversion()?;
     let inputs = args.inputs.source(false)?;
     let audit = audit::audit(&args.model, &conversion, &inputs, &opts)?;
-    if let Some(out) = &args.output {
-        audit.rewritten.save(out, &SaveOptions::default())?;
-    }
+    let judgement = audit.judgement();
+    let passed = judgement.verdict == audit::Verdict::Pass;
+    let written = match &args.output {
+        Some(out) if passed || args.write_failing => {
+            audit.rewritten.save(out, &SaveOptions::default())?;
+            Some(out)
+        }
+        _ => None,
+    };
     if let Some(path) = &args.report {
         let section = ModelSection {
             name: args.model.display().to_string(),
-            plan: Some(&audit.plan),
-            drift: Some(&audit.drift),
+            audit: Some(&audit),
             error: None,
         };
         let title = format!("actswap audit: {}", file_name(&args.model));
         write_atomic(path, html::render(&title, &[section]).as_bytes())?;
     }
     if args.json {
-        let mut v =
-            serde_json::json!({"plan": audit.plan.to_json(), "drift": audit.drift.to_json()});
-        if let Some(out) = &args.output {
+        let mut v = serde_json::json!({
+            "actswap": env!("CARGO_PKG_VERSION"),
+            "model": args.model.display().to_string(),
+            "converted_for": audit.conversion,
+            "budget": audit.drift.budgets,
+            "budget_source": audit.budget_source,
+            "inputs": audit.drift.input_source,
+            "plan": audit.plan.to_json(),
+            "readiness": audit.readiness,
+            "drift": audit.drift.to_json(),
+            "verdict": judgement.verdict,
+            "reasons": judgement.reasons,
+        });
+        if let Some(out) = written {
             v["written"] = out.display().to_string().into();
         }
         if let Some(path) = &args.report {
@@ -75,19 +101,26 @@ pub fn run(args: Args) -> Result<ExitCode> {
     } else {
         output::print(&plan_table::render(&audit.plan))?;
         output::print(&format!("\n{}", drift_table::render(&audit.drift)))?;
-        output::print(&format!("audit: {}\n", verdict_line(&audit)))?;
         if let Some(out) = &args.output {
-            output::print(&format!("wrote {}\n", out.display()))?;
+            match written {
+                Some(_) => output::print(&format!("wrote {}\n", out.display()))?,
+                None => output::print(&format!(
+                    "not written: {} (the verdict is not pass; --write-failing writes it anyway)\n",
+                    out.display()
+                ))?,
+            }
         }
         if let Some(path) = &args.report {
             output::print(&format!("wrote report {}\n", path.display()))?;
         }
+        let context = Judged {
+            conversion: Some(&audit.conversion),
+            budget: Some((&audit.drift.budgets, &audit.budget_source)),
+            readiness: audit.readiness.as_ref(),
+        };
+        output::print(&footer::render(&context, &judgement))?;
     }
-    Ok(if audit.summary().verdict == Verdict::Pass {
-        ExitCode::SUCCESS
-    } else {
-        ExitCode::from(EXIT_OVER_BUDGET)
-    })
+    Ok(exit_code(judgement.verdict))
 }
 
 /// The file name of a path, or the whole path when it has none.
@@ -96,17 +129,4 @@ fn file_name(p: &Path) -> String {
         || p.display().to_string(),
         |n| n.to_string_lossy().into_owned(),
     )
-}
-
-/// The audit's verdict in words: the drift verdict and the plan's unserved sites together.
-fn verdict_line(audit: &Audit) -> String {
-    match audit.summary().verdict {
-        Verdict::Pass => "pass".into(),
-        Verdict::OverBudget => "over budget (see the offenders above)".into(),
-        Verdict::Unserved => format!(
-            "unserved: {} site(s) have no form the target accepts (see the plan above)",
-            audit.plan.unserved()
-        ),
-        Verdict::Error => "error".into(),
-    }
 }

@@ -2,8 +2,9 @@
 //! under the output folder and summarizing them all. A model that fails is listed with its error
 //! and nothing is written for it; the others go on.
 //!
-//! Exit codes: 0 every model within budget, 1 some model over budget or with unserved sites, 2 some
-//! model failed (or the batch itself could not start).
+//! Exit codes: 0 every model passes, 1 some model has another verdict (ops the target does not
+//! run, unserved sites, over budget, nothing compared), 2 some model failed (or the batch itself
+//! could not start).
 
 use std::io::IsTerminal;
 use std::path::PathBuf;
@@ -12,8 +13,8 @@ use std::time::Instant;
 
 use anyhow::Result;
 
-use crate::audit::{Audit, BatchReport, ModelRow, Verdict};
-use crate::batch::{self, Job};
+use crate::audit::{BatchContext, BatchReport, ModelRow};
+use crate::batch::{self, Converted, Job};
 use crate::onnx::model::write_atomic;
 use crate::report::batch_table;
 use crate::report::html::{self, ModelSection};
@@ -21,7 +22,7 @@ use crate::report::html::{self, ModelSection};
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
 use super::plan_args::PlanArgs;
-use super::{EXIT_ERROR, EXIT_OVER_BUDGET, output};
+use super::{exit_code, output};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -33,7 +34,7 @@ and nothing is written for it; the other models go on. Prints a summary per mode
 --json, --markdown and --report give it as JSON, as Markdown for a CI job summary and as a \
 self-contained HTML page. Drift on sample inputs certifies nothing for safety-relevant uses: \
 validate as your domain requires.",
-    after_help = "Examples:\n  actswap batch exported/ --target piecewise-linear --dim batch=1 -o converted/\n  actswap batch exported/ --to silu=hard_swish --max-abs 1e-2 -o converted/ --markdown summary.md --report batch.html\n\nExit codes: 0 all within budget, 1 some over budget or unserved, 2 some model failed."
+    after_help = "Examples:\n  actswap batch exported/ --target piecewise-linear --dim batch=1 -o converted/\n  actswap batch exported/ --to silu=hard_swish --max-abs 1e-2 -o converted/ --markdown summary.md --report batch.html\n\nOnly models whose verdict is pass are written (--write-failing writes every one).\nExit codes: 0 all pass, 1 some other verdict, 2 some model failed."
 )]
 pub struct Args {
     /// Model files, or folders searched for .onnx files (inputs are never modified).
@@ -41,9 +42,13 @@ pub struct Args {
     paths: Vec<PathBuf>,
     #[command(flatten)]
     plan: PlanArgs,
-    /// Folder the converted models are written to, in the layout they were found in.
+    /// Folder the converted models are written to, in the layout they were found in: those
+    /// whose verdict is pass.
     #[arg(short = 'o', long = "output", value_name = "OUTDIR", required = true)]
     out_dir: PathBuf,
+    /// Write every converted model, whatever its verdict.
+    #[arg(long)]
+    write_failing: bool,
     #[command(flatten)]
     inputs: InputArgs,
     #[command(flatten)]
@@ -78,7 +83,14 @@ pub fn run(args: Args) -> Result<ExitCode> {
         threads,
         |job| {
             let inputs = inputs.for_model(&job.relative);
-            batch::convert(job, &args.out_dir, &conversion, &inputs, &opts)
+            batch::convert(
+                job,
+                &args.out_dir,
+                &conversion,
+                &inputs,
+                &opts,
+                args.write_failing,
+            )
         },
         |i, r| progress.finished(&jobs[i], r),
     );
@@ -88,21 +100,30 @@ pub fn run(args: Args) -> Result<ExitCode> {
         .zip(&results)
         .map(|(job, r)| ModelSection {
             name: job.source.display().to_string(),
-            plan: r.as_ref().ok().map(|a| &a.plan),
-            drift: r.as_ref().ok().map(|a| &a.drift),
+            audit: r.as_ref().ok().map(|c| &c.audit),
             error: r.as_ref().err().map(|e| super::one_line(&format!("{e:#}"))),
         })
         .collect();
-    let rows: Vec<ModelRow> = jobs
+    let rows: Vec<ModelRow> = results
         .iter()
         .zip(&sections)
-        .map(|(job, s)| ModelRow {
-            output: (s.error.is_none())
-                .then(|| args.out_dir.join(&job.relative).display().to_string()),
+        .map(|(r, s)| ModelRow {
+            output: r
+                .as_ref()
+                .ok()
+                .and_then(|c| c.written.as_ref())
+                .map(|p| p.display().to_string()),
             summary: s.summary().expect("a section holds a result or an error"),
         })
         .collect();
-    let report = BatchReport::new(rows);
+    let (budget, budget_source) = conversion.budget(opts.budgets);
+    let context = BatchContext {
+        converted_for: conversion.describe(),
+        budget,
+        budget_source,
+        inputs: args.inputs.describe(),
+    };
+    let report = BatchReport::new(context, rows);
     if let Some(path) = &args.markdown {
         write_atomic(path, batch_table::markdown(&report).as_bytes())?;
     }
@@ -114,11 +135,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     } else {
         output::print(&batch_table::text(&report))?;
     }
-    Ok(ExitCode::from(match report.worst_verdict() {
-        Verdict::Error => EXIT_ERROR,
-        Verdict::Pass => 0,
-        Verdict::OverBudget | Verdict::Unserved => EXIT_OVER_BUDGET,
-    }))
+    Ok(exit_code(report.worst_verdict()))
 }
 
 /// A progress bar on a terminal; plain lines on standard error otherwise.
@@ -150,10 +167,10 @@ impl Progress {
         }
     }
 
-    fn finished(&self, job: &Job, result: &Result<Audit>) {
+    fn finished(&self, job: &Job, result: &Result<Converted>) {
         let n = self.done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
         let verdict = match result {
-            Ok(a) => a.summary().verdict.as_str().to_string(),
+            Ok(c) => c.audit.judgement().line(),
             Err(e) => format!("error: {}", super::one_line(&format!("{e:#}"))),
         };
         let line = format!(

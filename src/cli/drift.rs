@@ -1,7 +1,8 @@
 //! `actswap drift`: the numeric drift and latency of a rewrite, per site and at every output,
 //! with both models run by tract on the same samples.
 //!
-//! Exit codes: 0 within budget, 1 over budget, 2 error. The JSON schema (`--json`) is documented
+//! Exit codes: 0 pass, 1 over budget or nothing compared, 2 error. Without budget flags the
+//! default budget applies ([`crate::measure::DEFAULT_BUDGET`]). The JSON schema (`--json`) is documented
 //! in [`crate::measure::report`].
 
 use std::path::PathBuf;
@@ -9,13 +10,15 @@ use std::process::ExitCode;
 
 use anyhow::{Context, Result, bail};
 
-use crate::measure::{self, Budgets, CompareOptions, LatencyOptions, Tolerance};
+use crate::audit::Judgement;
+use crate::measure::{self, Budgets, CompareOptions, DEFAULT_BUDGET, LatencyOptions, Tolerance};
 use crate::onnx::Model;
 use crate::report::drift_table;
+use crate::report::footer::{self, Judged};
 use crate::run;
 
 use super::inputs::InputArgs;
-use super::{EXIT_OVER_BUDGET, output};
+use super::{exit_code, output};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -27,7 +30,7 @@ catalogue's worst-case error over it, and per graph output max abs, mean abs, RM
 cosine, the share beyond tolerance and top-1 agreement; then end-to-end and per-site latency. \
 Drift on sample inputs certifies nothing for safety-relevant uses: validate as your domain \
 requires.",
-    after_help = "Examples:\n  actswap drift model.onnx model.fast.onnx\n  actswap drift model.onnx model.fast.onnx --input image=batch.npy --max-abs 1e-3 --min-cosine 0.9999\n  actswap drift model.onnx model.fast.onnx --samples 8 --dist uniform --range=-4,4 --json\n\nExit codes: 0 within budget, 1 over budget, 2 error."
+    after_help = "Examples:\n  actswap drift model.onnx model.fast.onnx\n  actswap drift model.onnx model.fast.onnx --input image=batch.npy --max-abs 1e-3 --min-cosine 0.9999\n  actswap drift model.onnx model.fast.onnx --samples 8 --dist uniform --range=-4,4 --json\n\nWithout budget flags the default budget applies (output cosine at least 0.999).\nExit codes: 0 pass, 1 over budget or nothing compared, 2 error."
 )]
 pub struct Args {
     /// The original ONNX model.
@@ -51,21 +54,34 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let specs = run::input_specs(&original.encode())
         .with_context(|| format!("'{}'", args.original.display()))?;
     let loaded = inputs.load(&specs)?;
+    let source = if opts.budgets.is_empty() {
+        "default"
+    } else {
+        "flags, then default"
+    };
     let opts = CompareOptions {
         input_source: loaded.source,
+        budgets: opts.budgets.or(DEFAULT_BUDGET),
         ..opts
     };
     let report = measure::compare_models(&original, &rewritten, &loaded.samples, &opts)?;
+    let judgement = Judgement::of(None, None, Some(&report));
     if args.json {
-        output::print_json(&report.to_json())?;
+        let mut v = report.to_json();
+        v["budget_source"] = source.into();
+        v["verdict"] = serde_json::to_value(judgement.verdict)?;
+        v["reasons"] = serde_json::to_value(&judgement.reasons)?;
+        output::print_json(&v)?;
     } else {
         output::print(&drift_table::render(&report))?;
+        let context = Judged {
+            conversion: None,
+            budget: Some((&report.budgets, source)),
+            readiness: None,
+        };
+        output::print(&footer::render(&context, &judgement))?;
     }
-    Ok(if report.within_budget {
-        ExitCode::SUCCESS
-    } else {
-        ExitCode::from(EXIT_OVER_BUDGET)
-    })
+    Ok(exit_code(judgement.verdict))
 }
 
 /// Budgets, tolerances and latency settings, shared by `drift` and `audit`.
@@ -80,6 +96,10 @@ pub struct MeasureArgs {
     /// Budget: smallest cosine similarity allowed at any output.
     #[arg(long, value_name = "X", help_heading = "Budgets")]
     min_cosine: Option<f64>,
+    /// Budget: smallest share of rows with the same top-1 class, at any output where top-1
+    /// applies (0 to 1).
+    #[arg(long, value_name = "X", help_heading = "Budgets")]
+    min_top1: Option<f64>,
     /// Budget: largest local max abs allowed at any site.
     #[arg(long, value_name = "X", help_heading = "Budgets")]
     site_max_abs: Option<f64>,
@@ -144,6 +164,11 @@ impl MeasureArgs {
         {
             bail!("--min-cosine must lie in [-1, 1] (got {c})");
         }
+        if let Some(t) = args.min_top1
+            && !(0.0..=1.0).contains(&t)
+        {
+            bail!("--min-top1 must lie in [0, 1] (got {t})");
+        }
         if args.runs == 0 {
             bail!("--runs must be at least 1");
         }
@@ -157,6 +182,7 @@ impl MeasureArgs {
                 max_abs: args.max_abs,
                 max_rel: args.max_rel,
                 min_cosine: args.min_cosine,
+                min_top1: args.min_top1,
                 site_max_abs: args.site_max_abs,
             },
             latency: (!args.no_latency).then_some(LatencyOptions {

@@ -94,6 +94,34 @@ impl InputArgs {
         })
     }
 
+    /// The options in words, for reports.
+    pub fn describe(&self) -> String {
+        let mut parts = Vec::new();
+        if let Some(dir) = &self.inputs_dir {
+            parts.push(format!("folder {}", dir.display()));
+        }
+        if !self.input.is_empty() {
+            parts.push(format!("files {}", self.input.join(", ")));
+        }
+        match self.random() {
+            Ok(r) if parts.is_empty() || !r.dims.is_empty() => {
+                let dims: Vec<String> = r.dims.iter().map(|(k, v)| format!("{k}={v}")).collect();
+                parts.push(format!(
+                    "seeded random data (seed {}, {} sample(s)){}",
+                    r.seed,
+                    r.samples,
+                    if dims.is_empty() {
+                        String::new()
+                    } else {
+                        format!(", dims {}", dims.join(" "))
+                    }
+                ));
+            }
+            _ => {}
+        }
+        parts.join("; ")
+    }
+
     /// The random-input settings, validated.
     fn random(&self) -> Result<RandomInputs> {
         let dist = self.dist.unwrap_or(Dist::Normal);

@@ -1,7 +1,8 @@
 //! The command line: one file per subcommand, a thin [`main`] and documented exit codes.
 //!
-//! Exit codes: 0 success; 1 a budget was exceeded or a site could not be served; 2 an error
-//! (bad input, unreadable model, invalid options).
+//! Exit codes: 0 the verdict is pass; 1 any other verdict (ops the target does not run, unserved
+//! sites, over budget, nothing compared); 2 an error (bad input, unreadable model, invalid
+//! options).
 
 mod audit;
 mod batch;
@@ -20,12 +21,25 @@ use std::process::ExitCode;
 use anyhow::Result;
 use clap::{Parser, Subcommand};
 
-/// Success.
+/// Success: the verdict is pass.
 pub const EXIT_OK: u8 = 0;
-/// A drift budget was exceeded, or a site had no accepted form.
-pub const EXIT_OVER_BUDGET: u8 = 1;
+/// Any verdict but pass and error: ops the target does not run, unserved sites, over budget,
+/// nothing compared.
+pub const EXIT_FAILED: u8 = 1;
 /// An error: bad input, unreadable model, invalid options.
 pub const EXIT_ERROR: u8 = 2;
+
+/// The exit code of a verdict.
+fn exit_code(verdict: crate::audit::Verdict) -> ExitCode {
+    use crate::audit::Verdict;
+    ExitCode::from(match verdict {
+        Verdict::Pass => EXIT_OK,
+        Verdict::Error => EXIT_ERROR,
+        Verdict::NotReady | Verdict::Unserved | Verdict::OverBudget | Verdict::NothingCompared => {
+            EXIT_FAILED
+        }
+    })
+}
 
 #[derive(Debug, Parser)]
 #[command(
@@ -35,7 +49,7 @@ pub const EXIT_ERROR: u8 = 2;
     long_about = "Find every activation site in an ONNX model (fused ops and the primitive chains \
 exporters spell them as), convert them to forms a target runtime accepts, and measure the numeric \
 drift and latency of the swap on CPU.",
-    after_help = "Exit codes: 0 ok, 1 over budget or unserved sites, 2 error."
+    after_help = "Exit codes: 0 pass, 1 another verdict (not_ready, unserved, over_budget, nothing_compared), 2 error."
 )]
 struct Cli {
     #[command(subcommand)]

@@ -8,8 +8,10 @@ use crate::plan::request::Request;
 
 #[derive(Debug, clap::Args)]
 pub struct PlanArgs {
-    /// A conversion: KIND=FORM, KIND=SUBSTITUTE or KIND=SUBSTITUTE:FORM; KIND may be '*'.
-    #[arg(long = "to", value_name = "KIND=FORM", conflicts_with = "target")]
+    /// A conversion: KIND=FORM, KIND=SUBSTITUTE or KIND=SUBSTITUTE:FORM; KIND may be '*'. With
+    /// --target, it refines the target for the kinds it names (the result must still be a form
+    /// the target runs).
+    #[arg(long = "to", value_name = "KIND=FORM")]
     to: Vec<String>,
     /// A target profile: a built-in name (see `actswap targets`) or a TOML file.
     #[arg(long, value_name = "PROFILE")]

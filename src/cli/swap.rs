@@ -5,17 +5,19 @@ use std::process::ExitCode;
 
 use anyhow::{Context, Result, bail};
 
+use crate::audit::{Judgement, Verdict, readiness};
 use crate::onnx::{Model, ModelIndex, SaveOptions};
+use crate::report::footer::{self, Judged};
 use crate::report::plan_table;
 use crate::rewrite;
 
 use super::plan_args::PlanArgs;
-use super::{EXIT_OVER_BUDGET, output};
+use super::{exit_code, output};
 
 #[derive(Debug, clap::Args)]
 #[command(
     about = "Convert activation sites to the forms a target runtime accepts",
-    after_help = "Examples:\n  actswap swap model.onnx -o out.onnx --to silu=fused\n  actswap swap model.onnx -o out.onnx --to gelu=gelu_tanh --to '*=primitive'\n  actswap swap model.onnx -o out.onnx --to swish=hard_swish:primitive --site s3\n  actswap swap model.onnx -o out.onnx --target core-opset13 --dry-run\n\nThe plan is printed before anything is written. Exit code 1 when a site cannot be served."
+    after_help = "Examples:\n  actswap swap model.onnx -o out.onnx --to silu=fused\n  actswap swap model.onnx -o out.onnx --to gelu=gelu_tanh --to '*=primitive'\n  actswap swap model.onnx -o out.onnx --to swish=hard_swish:primitive --site s3\n  actswap swap model.onnx -o out.onnx --target core-opset13 --dry-run\n\nThe plan is printed before anything is written; the model is written only when the verdict is pass (--write-failing writes it anyway). Exit codes: 0 pass, 1 unserved sites or ops the target does not run, 2 error."
 )]
 pub struct Args {
     /// The ONNX model file (never modified unless --overwrite and -o name it).
@@ -39,6 +41,10 @@ pub struct Args {
     /// Allow OUT to be the input file.
     #[arg(long)]
     overwrite: bool,
+    /// Write the converted model whatever the verdict (by default only a model that passes:
+    /// every site served and, with --target, every node run by the target).
+    #[arg(long)]
+    write_failing: bool,
 }
 
 pub fn run(args: Args) -> Result<ExitCode> {
@@ -56,16 +62,23 @@ pub fn run(args: Args) -> Result<ExitCode> {
     }
     let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
     let plan = conversion.plan(&index, &args.model)?;
+    let (rewritten, applied) = rewrite::apply(&model, &index, &plan)?;
+    let readiness = match conversion.profile() {
+        Some(p) => {
+            let new_index = ModelIndex::build(&rewritten).context("the converted model")?;
+            let sites = rewrite::counterparts(&plan, &applied, &index, &new_index)?;
+            Some(readiness::check(&new_index, p, &sites))
+        }
+        None => None,
+    };
+    let judgement = Judgement::of(Some(&plan), readiness.as_ref(), None);
+    let write = !args.dry_run && (judgement.verdict == Verdict::Pass || args.write_failing);
     let mut json = plan.to_json();
-    if !args.json {
-        output::print(&plan_table::render(&plan))?;
-    }
-    if !args.dry_run {
+    if write {
         let out = args
             .output
             .as_ref()
             .expect("clap requires -o without --dry-run");
-        let (rewritten, applied) = rewrite::apply(&model, &index, &plan)?;
         let opts = SaveOptions {
             overwrite_input: args.overwrite,
             ..SaveOptions::default()
@@ -76,21 +89,35 @@ pub fn run(args: Args) -> Result<ExitCode> {
             .iter()
             .map(|a| serde_json::json!({"site": a.site, "output": a.output, "nodes": a.nodes, "constants": a.constants}))
             .collect();
-        if !args.json {
-            output::print(&format!(
+    }
+    if args.json {
+        json["converted_for"] = conversion.describe().into();
+        json["readiness"] = serde_json::to_value(&readiness)?;
+        json["verdict"] = serde_json::to_value(judgement.verdict)?;
+        json["reasons"] = serde_json::to_value(&judgement.reasons)?;
+        output::print_json(&json)?;
+    } else {
+        output::print(&plan_table::render(&plan))?;
+        match &args.output {
+            Some(out) if write => output::print(&format!(
                 "wrote {} ({} site{} rewritten)\n",
                 out.display(),
                 applied.len(),
                 if applied.len() == 1 { "" } else { "s" }
-            ))?;
+            ))?,
+            Some(out) if !args.dry_run => output::print(&format!(
+                "not written: {} (the verdict is not pass; --write-failing writes it anyway)\n",
+                out.display()
+            ))?,
+            _ => {}
         }
+        let description = conversion.describe();
+        let context = Judged {
+            conversion: Some(&description),
+            budget: None,
+            readiness: readiness.as_ref(),
+        };
+        output::print(&footer::render(&context, &judgement))?;
     }
-    if args.json {
-        output::print_json(&json)?;
-    }
-    Ok(if plan.unserved() > 0 {
-        ExitCode::from(EXIT_OVER_BUDGET)
-    } else {
-        ExitCode::SUCCESS
-    })
+    Ok(exit_code(judgement.verdict))
 }

@@ -135,7 +135,11 @@ pub fn compare(
         match drift {
             Ok(_) => {
                 let m = out.metrics.as_ref().expect("measured output");
-                offenders.extend(opts.budgets.check_output(&out.name, m));
+                offenders.extend(opts.budgets.check_output(
+                    &out.name,
+                    m,
+                    out.top1_agreement.as_ref(),
+                ));
             }
             Err(reason) => offenders.push(budget::incomparable(&out.name, reason.clone())),
         }

@@ -16,7 +16,7 @@ pub mod range;
 pub mod result;
 mod stats;
 
-pub use budget::{Budgets, Offender, Scope};
+pub use budget::{Budgets, DEFAULT_BUDGET, Offender, Scope};
 pub use compare::{CompareOptions, compare, compare_models};
 pub use latency::LatencyOptions;
 pub use metrics::{Drift, Tolerance, Top1};

@@ -1,11 +1,13 @@
 //! The planner: for every site, what to emit (kind, form, parameters) and the error it brings,
-//! from `--to` requests or a target profile. The plan holds the form it emitted for each site
-//! rewritten; nothing is written to the model here, and the plan is shown first.
+//! from `--to` requests, a target profile, or both (a request refines the target for the kinds it
+//! names). The plan holds the form it emitted for each site rewritten; nothing is written to the
+//! model here, and the plan is shown first.
 //!
-//! With a profile, a site already accepted by the target is kept (unless the profile prefers a
-//! form); otherwise exact forms come first (fused, primitive, in the profile's order), then the
-//! approximation with the smallest worst-case error within the profile's allowance. A form whose
-//! ops need a higher opset than the model declares is never offered: the opset is not changed.
+//! With a profile, a site the target already runs is kept; otherwise exact forms come first
+//! (fused, primitive, in the order the profile prefers), then the approximation with the smallest
+//! worst-case error within the profile's allowance. A form whose ops need a higher opset than the
+//! model declares is never offered: the opset is not changed, and a model whose opset is above
+//! the target's gets that one reason for every site.
 
 pub mod profile;
 pub mod request;
@@ -66,10 +68,29 @@ pub struct Plan {
     pub warnings: Vec<String>,
 }
 
-/// Where the plan's choices come from.
-pub enum Policy<'a> {
-    Requests(&'a [Request]),
-    Target(&'a Profile),
+/// Where the plan's choices come from: `--to` requests, a target profile, or both.
+#[derive(Clone, Copy)]
+pub struct Policy<'a> {
+    pub requests: &'a [Request],
+    pub target: Option<&'a Profile>,
+}
+
+impl<'a> Policy<'a> {
+    /// `--to` requests alone.
+    pub fn requests(requests: &'a [Request]) -> Policy<'a> {
+        Policy {
+            requests,
+            target: None,
+        }
+    }
+
+    /// A target profile alone.
+    pub fn target(profile: &'a Profile) -> Policy<'a> {
+        Policy {
+            requests: &[],
+            target: Some(profile),
+        }
+    }
 }
 
 impl Plan {
@@ -77,7 +98,7 @@ impl Plan {
     /// the main graph's default-domain opset.
     pub fn build(sites: Vec<Site>, policy: &Policy, model_opset: Option<i64>) -> Plan {
         let mut warnings = Vec::new();
-        if let Policy::Target(p) = policy
+        if let Some(p) = policy.target
             && let (Some(max), Some(opset)) = (p.max_opset, model_opset)
             && opset > max
         {
@@ -186,11 +207,29 @@ struct Candidate {
 
 fn plan_site(site: &Site, policy: &Policy) -> Action {
     let kind = site.kind;
-    let accepted_now =
-        |p: &Profile| site.domain.is_none() && site.ops.iter().all(|op| p.accepts(op, site.opset));
+    let target = policy.target;
+    let runs = |p: &Profile, domain: &str, op: &str| {
+        p.accepts(domain, op, site.opset, Some(site.elem_type))
+    };
+    let accepted_now = |p: &Profile| {
+        let domain = site.domain.as_deref().unwrap_or("");
+        site.ops.iter().all(|op| runs(p, domain, op))
+    };
+    if let Some(p) = target
+        && let Some(max) = p.max_opset
+        && site.opset > max
+    {
+        return Action::Unserved {
+            reason: format!(
+                "the model's opset {} is above the {max} target '{}' runs; actswap never changes \
+                 a model's opset",
+                site.opset, p.name
+            ),
+        };
+    }
     let Some(params) = &site.params else {
-        return match policy {
-            Policy::Target(p) if accepted_now(p) => Action::Keep {
+        return match target {
+            Some(p) if accepted_now(p) => Action::Keep {
                 reason: "accepted by the target".into(),
             },
             _ => Action::Unserved {
@@ -208,117 +247,98 @@ fn plan_site(site: &Site, policy: &Policy) -> Action {
             emitted,
         })
     };
-    match policy {
-        Policy::Requests(requests) => {
-            let Some(r) = request::select(requests, kind) else {
+    // A form the target does not run is no answer; the first op it refuses, when one is.
+    let refused = |emitted: &Emitted| {
+        target.and_then(|p| {
+            emitted
+                .ops
+                .iter()
+                .find(|o| !runs(p, "", o.op_type))
+                .map(|o| o.op_type)
+        })
+    };
+
+    if let Some(r) = request::select(policy.requests, kind) {
+        if !site.rewritable {
+            return Action::Unserved {
+                reason: format!("not rewritable: {}", site.notes.join("; ")),
+            };
+        }
+        let Some(c) = candidates(kind, params, r.to).into_iter().next() else {
+            return Action::Unserved {
+                reason: format!(
+                    "the catalogue has no substitution from {} to {}",
+                    kind.id,
+                    r.to.map_or("?", |k| k.id)
+                ),
+            };
+        };
+        let forms = match r.form {
+            Some(f) => vec![f],
+            None => vec![Form::Fused, Form::Primitive],
+        };
+        let mut reasons = Vec::new();
+        for form in forms {
+            if c.kind.id == kind.id && already_in(site, form) {
                 return Action::Keep {
-                    reason: "no --to rule for this kind".into(),
-                };
-            };
-            if !site.rewritable {
-                return Action::Unserved {
-                    reason: format!("not rewritable: {}", site.notes.join("; ")),
+                    reason: format!("already in the {form} form"),
                 };
             }
-            let Some(c) = candidates(kind, params, r.to).into_iter().next() else {
-                return Action::Unserved {
-                    reason: format!(
-                        "the catalogue has no substitution from {} to {}",
-                        kind.id,
-                        r.to.map_or("?", |k| k.id)
-                    ),
-                };
-            };
-            let forms = match r.form {
-                Some(f) => vec![f],
-                None => vec![Form::Fused, Form::Primitive],
-            };
-            let mut reasons = Vec::new();
-            for form in forms {
-                if c.kind.id == kind.id && already_in(site, form) {
-                    return Action::Keep {
-                        reason: format!("already in the {form} form"),
-                    };
-                }
-                match emit(site, c.kind, &c.params, form) {
-                    Ok(emitted) => return replace(c, form, emitted),
-                    Err(e) => reasons.push(format!("{}:{form}: {e}", c.kind.id)),
-                }
-            }
-            Action::Unserved {
-                reason: reasons.join("; "),
+            match emit(site, c.kind, &c.params, form) {
+                Ok(emitted) => match refused(&emitted) {
+                    None => return replace(c, form, emitted),
+                    Some(op) => reasons.push(format!("{}:{form}: {op} not accepted", c.kind.id)),
+                },
+                Err(e) => reasons.push(format!("{}:{form}: {e}", c.kind.id)),
             }
         }
-        Policy::Target(p) => {
-            let exact_forms: Vec<Form> = match p.prefer {
-                Prefer::Primitive => vec![Form::Primitive, Form::Fused],
-                _ => vec![Form::Fused, Form::Primitive],
-            };
-            if accepted_now(p) {
-                let preferred = match p.prefer {
-                    Prefer::Keep => None,
-                    Prefer::Fused => Some(Form::Fused),
-                    Prefer::Primitive => Some(Form::Primitive),
-                };
-                let keep = Action::Keep {
-                    reason: "accepted by the target".into(),
-                };
-                let Some(form) = preferred else { return keep };
-                if !site.rewritable || already_in(site, form) {
-                    return keep;
-                }
-                return match emit(site, kind, params, form) {
-                    Ok(emitted) if emitted.ops.iter().all(|o| p.accepts(o.op_type, site.opset)) => {
-                        let own = Candidate {
-                            kind,
-                            params: params.clone(),
-                            rule: None,
-                            bound: EXACT,
-                        };
-                        replace(own, form, emitted)
-                    }
-                    _ => keep,
-                };
+        return Action::Unserved {
+            reason: reasons.join("; "),
+        };
+    }
+
+    let Some(p) = target else {
+        return Action::Keep {
+            reason: "no --to rule for this kind".into(),
+        };
+    };
+    if accepted_now(p) {
+        return Action::Keep {
+            reason: "accepted by the target".into(),
+        };
+    }
+    if !site.rewritable {
+        return Action::Unserved {
+            reason: format!("not accepted and not rewritable: {}", site.notes.join("; ")),
+        };
+    }
+    let exact_forms: Vec<Form> = match p.prefer {
+        Prefer::Primitive => vec![Form::Primitive, Form::Fused],
+        _ => vec![Form::Fused, Form::Primitive],
+    };
+    let mut reasons = Vec::new();
+    for c in candidates(kind, params, None) {
+        if c.bound.value > p.max_approx_error {
+            if c.rule.is_some() {
+                reasons.push(format!(
+                    "{}: error {:.4} over the allowance",
+                    c.kind.id, c.bound.value
+                ));
             }
-            if !site.rewritable {
-                return Action::Unserved {
-                    reason: format!("not accepted and not rewritable: {}", site.notes.join("; ")),
-                };
-            }
-            let mut reasons = Vec::new();
-            for c in candidates(kind, params, None) {
-                if c.bound.value > p.max_approx_error {
-                    if c.rule.is_some() {
-                        reasons.push(format!(
-                            "{}: error {:.4} over the allowance",
-                            c.kind.id, c.bound.value
-                        ));
-                    }
-                    continue;
-                }
-                for &form in &exact_forms {
-                    match emit(site, c.kind, &c.params, form) {
-                        Ok(emitted) => {
-                            match emitted
-                                .ops
-                                .iter()
-                                .find(|o| !p.accepts(o.op_type, site.opset))
-                            {
-                                None => return replace(c, form, emitted),
-                                Some(o) => reasons.push(format!(
-                                    "{}:{form}: {} not accepted",
-                                    c.kind.id, o.op_type
-                                )),
-                            }
-                        }
-                        Err(e) => reasons.push(format!("{}:{form}: {e}", c.kind.id)),
-                    }
-                }
-            }
-            Action::Unserved {
-                reason: reasons.join("; "),
+            continue;
+        }
+        for &form in &exact_forms {
+            match emit(site, c.kind, &c.params, form) {
+                Ok(emitted) => match refused(&emitted) {
+                    None => return replace(c, form, emitted),
+                    Some(op) => reasons.push(format!("{}:{form}: {op} not accepted", c.kind.id)),
+                },
+                Err(e) => reasons.push(format!("{}:{form}: {e}", c.kind.id)),
             }
         }
+    }
+    Action::Unserved {
+        reason: reasons.join("; "),
     }
 }
 

@@ -1,16 +1,24 @@
-//! Target profiles: which ops a runtime or accelerator accepts, at which opsets, and how much
-//! approximation error a conversion may introduce. Written in TOML:
+//! Target profiles: the runtime or accelerator a model is converted for. Which ops it runs (at
+//! which opsets and, optionally, element types), how much approximation error a conversion may
+//! introduce, and the drift budget a converted model must meet. Written in TOML:
 //!
 //! ```toml
 //! name = "my-npu"
 //! description = "Our edge NPU: opset 13, piecewise-linear activations only"
 //! max_opset = 13            # optional: highest default-domain opset the target runs
-//! prefer = "keep"           # keep | fused | primitive: what to do with sites already accepted
+//! prefer = "keep"           # keep | fused | primitive: the form for sites the target rejects
 //! max_approx_error = 0.15   # worst-case |error| over the real line allowed for an approximation
 //!
-//! [ops]                     # accepted default-domain ops, each with the opsets it runs at:
+//! [ops]                     # accepted ops, each with the opsets it runs at:
 //! Add = "*"                 # "*" any, ">=N", "<=N", "N-M"
 //! Clip = "11-13"
+//! Relu = { opsets = "*", types = ["float", "int8"] }   # only these element types
+//! "com.microsoft:FastGelu" = "*"                        # an op of another domain
+//! "*" = "*"                 # optional: every other default-domain op
+//!
+//! [budget]                  # optional: drift budget (flags override each limit)
+//! min_cosine = 0.999        # outputs: max_abs, max_rel, min_cosine, min_top1
+//! site_max_abs = 0.2        # each site's local drift
 //! ```
 
 use std::collections::BTreeMap;
@@ -18,17 +26,21 @@ use std::path::Path;
 
 use anyhow::{Context, Result, bail};
 use serde::{Deserialize, Deserializer};
+use sha2::{Digest, Sha256};
 
-/// What a site already accepted by the target becomes.
+use crate::measure::Budgets;
+use crate::onnx::proto::tensor_proto::DataType;
+
+/// The form a site the target rejects is rewritten to first.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Default)]
 #[serde(rename_all = "lowercase")]
 pub enum Prefer {
-    /// Leave it as it is.
+    /// Exact forms in the order fused, primitive.
     #[default]
     Keep,
-    /// Rewrite it to the fused op when the target accepts that.
+    /// The fused op first.
     Fused,
-    /// Rewrite it to the primitive decomposition when the target accepts that.
+    /// The primitive decomposition first.
     Primitive,
 }
 
@@ -89,6 +101,64 @@ fn parse_range(text: &str) -> Result<OpsetRange, String> {
     Ok(r)
 }
 
+/// How the target runs one op: the opsets, and the element types when the profile restricts
+/// them.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OpRule {
+    pub opsets: OpsetRange,
+    /// `None`: every element type the op's schema allows.
+    pub types: Option<Vec<DataType>>,
+}
+
+impl<'de> Deserialize<'de> for OpRule {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        #[derive(Deserialize)]
+        #[serde(untagged)]
+        enum Spelled {
+            Range(OpsetRange),
+            Table {
+                opsets: OpsetRange,
+                #[serde(default)]
+                types: Option<Vec<String>>,
+            },
+        }
+        let types = |names: Vec<String>| {
+            names
+                .iter()
+                .map(|n| elem_type(n))
+                .collect::<Result<Vec<_>, String>>()
+        };
+        match Spelled::deserialize(d)? {
+            Spelled::Range(opsets) => Ok(OpRule {
+                opsets,
+                types: None,
+            }),
+            Spelled::Table { opsets, types: t } => Ok(OpRule {
+                opsets,
+                types: t.map(types).transpose().map_err(serde::de::Error::custom)?,
+            }),
+        }
+    }
+}
+
+/// An element type by its ONNX name, in any case (`float`, `FLOAT16`, `int8`).
+fn elem_type(name: &str) -> Result<DataType, String> {
+    DataType::from_str_name(&name.to_ascii_uppercase())
+        .filter(|dt| *dt != DataType::Undefined)
+        .ok_or_else(|| format!("'{name}' is not an ONNX element type (float, float16, int8, ...)"))
+}
+
+/// Where a profile came from, as reports record it.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Origin {
+    BuiltIn,
+    /// A file, with the SHA-256 of its bytes.
+    File {
+        path: String,
+        sha256: String,
+    },
+}
+
 /// A target profile.
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -101,14 +171,81 @@ pub struct Profile {
     pub prefer: Prefer,
     #[serde(default)]
     pub max_approx_error: f64,
-    pub ops: BTreeMap<String, OpsetRange>,
+    /// Accepted ops by type (`domain:Op` outside the default domain); `*` for every other
+    /// default-domain op.
+    pub ops: BTreeMap<String, OpRule>,
+    /// The drift budget a conversion for this target must meet.
+    #[serde(default)]
+    pub budget: Budgets,
+    #[serde(skip, default = "built_in")]
+    pub origin: Origin,
+}
+
+fn built_in() -> Origin {
+    Origin::BuiltIn
+}
+
+/// Why a target does not run a node.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Refusal {
+    /// The model's opset is above the highest the target runs.
+    Opset { model: i64, max: i64 },
+    /// The op is not in the profile.
+    Op,
+    /// The op is, but not at this opset.
+    OpOpset,
+    /// The op is, but not for this element type.
+    ElemType(DataType),
 }
 
 impl Profile {
-    /// True when the target runs `op` (default domain) at `opset`.
-    pub fn accepts(&self, op: &str, opset: i64) -> bool {
-        self.max_opset.is_none_or(|m| opset <= m)
-            && self.ops.get(op).is_some_and(|r| r.contains(opset))
+    /// True when the target runs `op` of `domain` at `opset` (for element type `elem`, when
+    /// known).
+    pub fn accepts(&self, domain: &str, op: &str, opset: i64, elem: Option<DataType>) -> bool {
+        self.refusal(domain, op, opset, elem).is_none()
+    }
+
+    /// Why the target does not run `op` of `domain` at `opset` for `elem`; `None` when it does.
+    pub fn refusal(
+        &self,
+        domain: &str,
+        op: &str,
+        opset: i64,
+        elem: Option<DataType>,
+    ) -> Option<Refusal> {
+        let default_domain = matches!(domain, "" | "ai.onnx");
+        if let Some(max) = self.max_opset
+            && default_domain
+            && opset > max
+        {
+            return Some(Refusal::Opset { model: opset, max });
+        }
+        let rule = if default_domain {
+            self.ops.get(op).or_else(|| self.ops.get("*"))
+        } else {
+            self.ops.get(&format!("{domain}:{op}"))
+        };
+        let Some(rule) = rule else {
+            return Some(Refusal::Op);
+        };
+        if !rule.opsets.contains(opset) {
+            return Some(Refusal::OpOpset);
+        }
+        match (&rule.types, elem) {
+            (Some(types), Some(dt)) if !types.contains(&dt) => Some(Refusal::ElemType(dt)),
+            _ => None,
+        }
+    }
+
+    /// How the profile is named in reports: its name, and its file and hash when it came from
+    /// one.
+    pub fn label(&self) -> String {
+        match &self.origin {
+            Origin::BuiltIn => format!("{} (built in)", self.name),
+            Origin::File { path, sha256 } => {
+                format!("{} (file {path}, sha256 {sha256})", self.name)
+            }
+        }
     }
 
     /// Parses profile text; errors name the line and the reason.
@@ -139,9 +276,19 @@ impl Profile {
                 names.join(", ")
             );
         }
-        let text = std::fs::read_to_string(path)
+        let bytes = std::fs::read(path)
             .with_context(|| format!("cannot read profile '{}'", path.display()))?;
-        Profile::parse(&text, &format!("'{}'", path.display()))
+        let text = std::str::from_utf8(&bytes)
+            .with_context(|| format!("profile '{}' is not UTF-8 text", path.display()))?;
+        let mut p = Profile::parse(text, &format!("'{}'", path.display()))?;
+        p.origin = Origin::File {
+            path: path.display().to_string(),
+            sha256: Sha256::digest(&bytes)
+                .iter()
+                .map(|b| format!("{b:02x}"))
+                .collect(),
+        };
+        Ok(p)
     }
 }
 
@@ -160,3 +307,52 @@ pub const BUILT_IN: &[(&str, &str)] = &[
         include_str!("../../profiles/fused-latest.toml"),
     ),
 ];
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn rules_take_ranges_tables_domains_and_a_wildcard() {
+        let p = Profile::parse(
+            r#"
+            name = "t"
+            [ops]
+            Relu = { opsets = ">=6", types = ["float", "INT8"] }
+            Clip = "11-13"
+            "com.microsoft:FastGelu" = "*"
+            [budget]
+            min_cosine = 0.99
+            "#,
+            "test",
+        )
+        .unwrap();
+        assert!(p.accepts("", "Relu", 13, Some(DataType::Int8)));
+        assert_eq!(
+            p.refusal("", "Relu", 13, Some(DataType::Int32)),
+            Some(Refusal::ElemType(DataType::Int32))
+        );
+        assert_eq!(p.refusal("", "Clip", 14, None), Some(Refusal::OpOpset));
+        assert_eq!(p.refusal("", "Conv", 13, None), Some(Refusal::Op));
+        assert!(p.accepts("com.microsoft", "FastGelu", 1, None));
+        assert_eq!(p.budget.min_cosine, Some(0.99));
+        let any = Profile::parse(
+            "name = \"any\"\nmax_opset = 13\n[ops]\n\"*\" = \"*\"\n",
+            "t",
+        )
+        .unwrap();
+        assert!(any.accepts("ai.onnx", "LayerNormalization", 13, None));
+        assert!(!any.accepts("com.microsoft", "FastGelu", 1, None));
+        assert_eq!(
+            any.refusal("", "Relu", 17, None),
+            Some(Refusal::Opset { model: 17, max: 13 })
+        );
+        assert!(
+            Profile::parse(
+                "name = \"x\"\n[ops]\nRelu = { opsets = \"*\", types = [\"floaty\"] }\n",
+                "t"
+            )
+            .is_err()
+        );
+    }
+}

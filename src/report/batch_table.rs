@@ -5,7 +5,7 @@ use super::drift_table::num;
 use super::table;
 use crate::audit::{BatchReport, ModelRow, Verdict};
 
-const HEADER: [&str; 9] = [
+const HEADER: [&str; 10] = [
     "model",
     "sites",
     "rewritten",
@@ -15,12 +15,15 @@ const HEADER: [&str; 9] = [
     "min cosine",
     "latency",
     "verdict",
+    "first reason",
 ];
 
 /// The summary as a terminal table.
 pub fn text(r: &BatchReport) -> String {
     let rows: Vec<Vec<String>> = r.models.iter().map(row).collect();
-    let mut out = table::render(&HEADER, &rows);
+    let mut out = context_lines(r).concat();
+    out.push('\n');
+    out.push_str(&table::render(&HEADER, &rows));
     out.push_str(&format!("\n{}\n", totals_line(r)));
     for m in failed(r) {
         out.push_str(&format!(
@@ -37,7 +40,10 @@ pub fn text(r: &BatchReport) -> String {
 pub fn markdown(r: &BatchReport) -> String {
     let cell = |s: &str| s.replace('|', "\\|");
     let mut out = String::from("## actswap batch\n\n");
-    out.push_str(&format!("**{}**\n\n", totals_line(r)));
+    for line in context_lines(r) {
+        out.push_str(&format!("- {}", cell(&line)));
+    }
+    out.push_str(&format!("\n**{}**\n\n", totals_line(r)));
     out.push_str(&format!("| {} |\n", HEADER.join(" | ")));
     out.push_str(&format!("|{}\n", "---|".repeat(HEADER.len())));
     for m in &r.models {
@@ -85,18 +91,41 @@ fn row(m: &ModelRow) -> Vec<String> {
         s.latency_ratio
             .map_or_else(|| "-".to_string(), |x| format!("{x:.2}x")),
         s.verdict.as_str().to_string(),
+        if failed {
+            "see below".to_string()
+        } else {
+            s.reasons.first().cloned().unwrap_or_default()
+        },
+    ]
+}
+
+/// What the batch was judged against, one line each.
+fn context_lines(r: &BatchReport) -> Vec<String> {
+    let c = &r.context;
+    vec![
+        format!("actswap        {}\n", r.actswap),
+        format!("converted for  {}\n", c.converted_for),
+        format!(
+            "budget         {} ({})\n",
+            c.budget.describe(),
+            c.budget_source
+        ),
+        format!("inputs         {}\n", c.inputs),
     ]
 }
 
 fn totals_line(r: &BatchReport) -> String {
     let t = &r.totals;
     format!(
-        "{} models: {} pass, {} over budget, {} with unserved sites, {} failed; {} sites, {} \
-         rewritten, {} kept, {} unserved",
+        "{} models: {} pass, {} not ready for the target, {} with unserved sites, {} over \
+         budget, {} with nothing compared, {} failed; {} sites, {} rewritten, {} kept, {} \
+         unserved",
         t.models,
         t.passed,
-        t.over_budget,
+        t.not_ready,
         t.unserved,
+        t.over_budget,
+        t.nothing_compared,
         t.errors,
         t.sites,
         t.rewritten,

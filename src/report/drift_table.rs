@@ -1,5 +1,5 @@
-//! The terminal form of a drift report: what is over budget, a table per site and per output,
-//! latency, the verdict and the caution line.
+//! The terminal form of a drift report: the budget and what is over it, a table per site and per
+//! output, latency and the caution line (the verdict comes after, see [`super::footer`]).
 
 use crate::catalog::{Kind, NamedParams, ParamValue, Params};
 use crate::measure::DriftReport;
@@ -21,6 +21,7 @@ pub fn render(r: &DriftReport) -> String {
         "tolerance  atol {:e}, rtol {:e}; max rel divides by max(|original|, {:e})\n",
         r.tolerance.atol, r.tolerance.rtol, r.tolerance.rel_floor
     ));
+    out.push_str(&format!("budget     {}\n", r.budgets.describe()));
     if !r.offenders.is_empty() {
         out.push_str(&format!("\nover budget ({}):\n", r.offenders.len()));
         for o in &r.offenders {
@@ -108,13 +109,7 @@ pub fn render(r: &DriftReport) -> String {
             l.warmup
         ));
     }
-    let verdict = if r.within_budget {
-        "within budget".to_string()
-    } else {
-        format!("OVER BUDGET ({} figures)", r.offenders.len())
-    };
-    out.push_str(&format!("\nverdict: {verdict}\n"));
-    out.push_str(&format!("caution: {}\n", r.caution));
+    out.push_str(&format!("\ncaution: {}\n", r.caution));
     out
 }
 
@@ -200,20 +195,26 @@ pub(crate) fn kind(kind: &Kind, params: Option<&Params>) -> String {
     format!("{id}({})", p.join(" "))
 }
 
-/// A figure: 0, four significant digits in [1e-3, 1e4), scientific otherwise.
+/// A figure: 0, four significant digits in [1e-3, 1e4), scientific otherwise; a figure that is
+/// not 1 is never shown as 1 (a cosine of 0.99997 is `0.99997`).
 pub(crate) fn num(x: f64) -> String {
     if x == 0.0 {
         "0".into()
     } else if !x.is_finite() {
         x.to_string()
     } else if (1e-3..1e4).contains(&x.abs()) {
-        let digits = (3 - x.abs().log10().floor() as i32).max(0) as usize;
-        let s = format!("{x:.digits$}");
-        if s.contains('.') {
-            s.trim_end_matches('0').trim_end_matches('.').to_string()
-        } else {
-            s
-        }
+        let least = (3 - x.abs().log10().floor() as i32).max(0) as usize;
+        (least..=12)
+            .map(|digits| {
+                let s = format!("{x:.digits$}");
+                if s.contains('.') {
+                    s.trim_end_matches('0').trim_end_matches('.').to_string()
+                } else {
+                    s
+                }
+            })
+            .find(|s| !s.parse::<f64>().is_ok_and(|v| v.abs() == 1.0 && v != x))
+            .unwrap_or_else(|| format!("{x:e}"))
     } else {
         format!("{x:.3e}")
     }

@@ -24,32 +24,30 @@ mod tables;
 
 use std::fmt::Write;
 
-use crate::audit::{self, ModelSummary};
+use crate::audit::{Audit, ModelSummary};
+use crate::measure::Budgets;
 use crate::measure::result::{CAUTION, SiteDrift};
-use crate::measure::{Budgets, DriftReport};
-use crate::plan::Plan;
 use crate::report::drift_table::kind;
 use markup::{esc, fig, full, ratio};
 use swaps::Swap;
 
 pub use swaps::CURVE_POINTS;
 
-/// One model of a report: its plan and drift report, or the error that stopped it.
+/// One model of a report: its audit, or the error that stopped it.
 pub struct ModelSection<'a> {
     /// How the model is named in the report (usually its path).
     pub name: String,
-    pub plan: Option<&'a Plan>,
-    pub drift: Option<&'a DriftReport>,
+    pub audit: Option<&'a Audit>,
     /// Why the model could not be audited; when set, the section shows only this.
     pub error: Option<String>,
 }
 
 impl ModelSection<'_> {
-    /// The model's summary: a failure for an error, nothing when a part is missing.
+    /// The model's summary: a failure for an error, nothing when there is neither.
     pub fn summary(&self) -> Option<ModelSummary> {
-        match (&self.error, self.plan, self.drift) {
-            (Some(e), _, _) => Some(ModelSummary::failed(&self.name, e)),
-            (None, Some(p), Some(d)) => Some(audit::summarize(p, d)),
+        match (&self.error, self.audit) {
+            (Some(e), _) => Some(ModelSummary::failed(&self.name, e)),
+            (None, Some(a)) => Some(a.summary()),
             _ => None,
         }
     }
@@ -127,39 +125,42 @@ fn section(i: usize, s: &ModelSection) -> String {
         out.push_str("</section>\n");
         return out;
     }
-    if let Some(d) = s.drift {
-        out.push_str(&facts(d));
-        if !d.offenders.is_empty() {
-            let _ = writeln!(
-                out,
-                "<h3>Over budget ({})</h3>\n<ul class=\"offenders\">",
-                d.offenders.len()
-            );
-            for o in &d.offenders {
-                let what = match &o.site {
-                    Some(id) => format!("site {id} ({})", o.name),
-                    None => format!("output {}", o.name),
-                };
-                let _ = writeln!(out, "<li>{}: {}</li>", esc(&what), esc(&o.reason));
-            }
-            out.push_str("</ul>\n");
-        }
+    let plan = s.audit.map(|a| &a.plan);
+    let drift = s.audit.map(|a| &a.drift);
+    if let Some(a) = s.audit {
+        out.push_str(&facts(a));
+        out.push_str(&reasons(a));
     }
-    if let Some(p) = s.plan.filter(|p| !p.warnings.is_empty()) {
+    if let Some(d) = drift.filter(|d| !d.offenders.is_empty()) {
+        let _ = writeln!(
+            out,
+            "<h3>Over budget ({})</h3>\n<ul class=\"offenders\">",
+            d.offenders.len()
+        );
+        for o in &d.offenders {
+            let what = match &o.site {
+                Some(id) => format!("site {id} ({})", o.name),
+                None => format!("output {}", o.name),
+            };
+            let _ = writeln!(out, "<li>{}: {}</li>", esc(&what), esc(&o.reason));
+        }
+        out.push_str("</ul>\n");
+    }
+    if let Some(p) = plan.filter(|p| !p.warnings.is_empty()) {
         out.push_str("<ul class=\"warnings\">\n");
         for w in &p.warnings {
             let _ = writeln!(out, "<li>warning: {}</li>", esc(w));
         }
         out.push_str("</ul>\n");
     }
-    let rows = tables::site_rows(s.plan.map(|p| p.sites.as_slice()), s.drift);
+    let rows = tables::site_rows(plan.map(|p| p.sites.as_slice()), drift);
     out.push_str("<h3>Sites</h3>\n");
     if rows.is_empty() {
         out.push_str("<p class=\"muted\">No activation site was found.</p>\n");
     } else {
         out.push_str(&tables::sites(&rows));
     }
-    let Some(d) = s.drift else {
+    let Some(d) = drift else {
         out.push_str("<p class=\"muted\">Drift and latency were not measured.</p>\n</section>\n");
         return out;
     };
@@ -208,12 +209,39 @@ fn section(i: usize, s: &ModelSection) -> String {
 }
 
 /// The facts of a comparison: models, inputs, tolerance, budgets, end-to-end latency.
-fn facts(d: &DriftReport) -> String {
+/// The verdict's reasons, and the ops the target does not run.
+fn reasons(a: &Audit) -> String {
+    let judgement = a.judgement();
+    let mut out = String::new();
+    if !judgement.reasons.is_empty() {
+        out.push_str("<h3>Verdict</h3>\n<ul class=\"reasons\">\n");
+        for r in &judgement.reasons {
+            let _ = writeln!(out, "<li>{}</li>", esc(r));
+        }
+        out.push_str("</ul>\n");
+    }
+    if let Some(r) = a.readiness.as_ref().filter(|r| !r.ready()) {
+        out.push_str(&tables::refused(r));
+    }
+    out
+}
+
+fn facts(a: &Audit) -> String {
+    let d = &a.drift;
     let samples = if d.samples == 1 { "sample" } else { "samples" };
     let mut out = String::from("<dl class=\"facts\">\n");
     let mut fact = |k: &str, v: String| {
         let _ = writeln!(out, "<dt>{k}</dt><dd>{v}</dd>");
     };
+    fact("converted for", esc(&a.conversion));
+    fact(
+        "target",
+        match &a.readiness {
+            None => "none given: the conversion is not checked against a runtime".into(),
+            Some(r) if r.ready() => "runs every node of the converted model".into(),
+            Some(r) => format!("does not run {} op type(s)", r.refused.len()),
+        },
+    );
     fact(
         "original",
         format!("<span class=\"mono\">{}</span>", esc(&d.model_a)),
@@ -235,7 +263,11 @@ fn facts(d: &DriftReport) -> String {
             fig(d.tolerance.rel_floor)
         ),
     );
-    fact("budgets", budgets(&d.budgets));
+    fact(
+        "budget",
+        format!("{} ({})", budgets(&d.budgets), esc(&a.budget_source)),
+    );
+    fact("actswap", env!("CARGO_PKG_VERSION").to_string());
     if let Some(l) = &d.latency {
         fact(
             "latency",
@@ -258,6 +290,7 @@ fn budgets(b: &Budgets) -> String {
         ("max abs", b.max_abs),
         ("max rel", b.max_rel),
         ("min cosine", b.min_cosine),
+        ("min top-1", b.min_top1),
         ("site max abs", b.site_max_abs),
     ]
     .into_iter()

@@ -4,6 +4,7 @@
 
 pub mod batch_table;
 pub mod drift_table;
+pub mod footer;
 pub mod html;
 pub mod plan_table;
 pub mod scan_table;

@@ -1,27 +1,29 @@
-//! A plain left-aligned text table with a header row.
+//! A plain left-aligned text table with a header row, fitted to the terminal: on a terminal,
+//! long cells wrap at word boundaries so that no line is wider than the window; elsewhere
+//! (files, pipes, tests) nothing wraps. The full text of every cell is in the JSON.
 
-/// Renders rows under a header, each column as wide as its widest cell, two spaces apart.
+use comfy_table::presets::NOTHING;
+use comfy_table::{ContentArrangement, Table};
+
+/// Renders rows under a header, each column as wide as its widest cell (or as the terminal
+/// allows), two spaces apart.
 pub fn render(header: &[&str], rows: &[Vec<String>]) -> String {
-    let mut widths: Vec<usize> = header.iter().map(|h| h.chars().count()).collect();
+    let mut table = Table::new();
+    table
+        .load_preset(NOTHING)
+        .set_content_arrangement(ContentArrangement::Dynamic)
+        .set_header(header.to_vec());
     for r in rows {
-        for (i, c) in r.iter().enumerate() {
-            widths[i] = widths[i].max(c.chars().count());
-        }
+        table.add_row(r.clone());
     }
-    let line = |cells: Vec<&str>| {
-        let mut s = String::new();
-        for (i, c) in cells.iter().enumerate() {
-            if i + 1 == cells.len() {
-                s.push_str(c);
-            } else {
-                s.push_str(&format!("{c:<w$}  ", w = widths[i]));
-            }
-        }
-        s.trim_end().to_string() + "\n"
-    };
-    let mut out = line(header.to_vec());
-    for r in rows {
-        out.push_str(&line(r.iter().map(String::as_str).collect()));
+    let last = header.len().saturating_sub(1);
+    for (i, column) in table.column_iter_mut().enumerate() {
+        column.set_padding((0, if i == last { 0 } else { 2 }));
+    }
+    let mut out = String::new();
+    for line in table.lines() {
+        out.push_str(line.trim_end());
+        out.push('\n');
     }
     out
 }

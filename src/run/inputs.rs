@@ -112,7 +112,12 @@ pub fn parse_dim_size(text: &str) -> Result<(String, usize), RunError> {
     let size = size
         .trim()
         .parse::<usize>()
-        .map_err(|_| bad("SIZE must be a non-negative integer"))?;
+        .map_err(|_| bad("SIZE must be a positive integer"))?;
+    if size == 0 {
+        return Err(bad(
+            "SIZE must be at least 1: a dim of 0 leaves nothing to compare",
+        ));
+    }
     Ok((name.to_string(), size))
 }
 
@@ -332,12 +337,26 @@ impl<'m> InputLoader<'m> {
         dir: &Path,
         budget: &mut Budget,
     ) -> Result<Vec<Vec<NamedTensor>>, RunError> {
-        match folder::layout(dir)? {
+        let names: Vec<&str> = self.inputs.iter().map(|i| i.name.as_str()).collect();
+        match folder::layout(dir, &names)? {
             folder::Layout::DataSets(sets) => sets
                 .iter()
                 .map(|set| self.sample_folder(set, budget))
                 .collect(),
             folder::Layout::Sample => Ok(vec![self.sample_folder(dir, budget)?]),
+            folder::Layout::Named(files) => {
+                let sample = files
+                    .iter()
+                    .map(|(name, path)| {
+                        let tensor = budget.read(
+                            |limit| read_tensor_file(path, limit),
+                            |tensor| tensor.len() as u128,
+                        )?;
+                        Ok(NamedTensor::new(name, tensor))
+                    })
+                    .collect::<Result<_, RunError>>()?;
+                Ok(vec![sample])
+            }
             folder::Layout::Archives(archives) => archives
                 .iter()
                 .map(|path| {

@@ -10,7 +10,7 @@
 
 mod expr;
 pub mod site;
-mod types;
+pub mod types;
 mod wiring;
 
 use std::collections::{BTreeMap, HashMap, HashSet};

@@ -4,7 +4,7 @@
 use std::fmt::Write;
 
 use super::markup::{dash, esc, fig, opt_fig, percent, ratio};
-use crate::audit::ModelSummary;
+use crate::audit::{ModelSummary, Readiness};
 use crate::catalog::{Kind, NamedParams, Params};
 use crate::measure::DriftReport;
 use crate::measure::result::{LocalBasis, SiteDrift};
@@ -327,4 +327,24 @@ fn push_notes(out: &mut String, notes: &[String]) {
         let _ = writeln!(out, "<li>{}</li>", esc(n));
     }
     out.push_str("</ul>\n");
+}
+
+/// The ops of the converted model the target does not run.
+pub fn refused(r: &Readiness) -> String {
+    let mut out = String::from(
+        "<h3>Not run by the target</h3>\n<div class=\"table-wrap\"><table class=\"refused\">\n<thead><tr><th>op</th><th class=\"n\">nodes</th><th>activation site</th><th>first nodes</th><th>why</th></tr></thead>\n<tbody>\n",
+    );
+    for o in &r.refused {
+        let _ = writeln!(
+            out,
+            "<tr><td class=\"mono\">{}</td><td class=\"n\">{}</td><td>{}</td><td class=\"mono\">{}</td><td>{}</td></tr>",
+            esc(&o.op),
+            o.count,
+            if o.activation_site { "yes" } else { "no" },
+            esc(&o.first_nodes.join(", ")),
+            esc(&o.reason)
+        );
+    }
+    out.push_str("</tbody></table></div>\n");
+    out
 }

@@ -1,4 +1,5 @@
-//! Finding samples in a folder: `test_data_set_N` subfolders, `input_K` files, numbered archives.
+//! Finding samples in a folder: `test_data_set_N` subfolders, `input_K` files, files named after
+//! the model's inputs, numbered archives.
 
 use std::path::{Path, PathBuf};
 
@@ -10,12 +11,14 @@ pub(super) enum Layout {
     DataSets(Vec<PathBuf>),
     /// `input_K.pb` / `input_K.npy` files: the folder is one sample.
     Sample,
+    /// `NAME.npy` / `NAME.pb` files named after the model's inputs: the folder is one sample.
+    Named(Vec<(String, PathBuf)>),
     /// `N.npz` / `STEM_N.npz` archives, in order of N.
     Archives(Vec<PathBuf>),
 }
 
-/// Detects the layout of `dir`.
-pub(super) fn layout(dir: &Path) -> Result<Layout, RunError> {
+/// Detects the layout of `dir`; `inputs` are the model's input names.
+pub(super) fn layout(dir: &Path, inputs: &[&str]) -> Result<Layout, RunError> {
     let entries = list(dir)?;
     let mut sets: Vec<(u64, PathBuf)> = entries
         .iter()
@@ -34,6 +37,22 @@ pub(super) fn layout(dir: &Path) -> Result<Layout, RunError> {
     if entries.iter().any(|p| input_index(p).is_some()) {
         return Ok(Layout::Sample);
     }
+    let named: Vec<(String, PathBuf)> = entries
+        .iter()
+        .filter(|p| p.is_file())
+        .filter_map(|p| {
+            let name = file_name(p);
+            let stem = name
+                .strip_suffix(".npy")
+                .or_else(|| name.strip_suffix(".pb"))?;
+            inputs
+                .contains(&stem)
+                .then(|| (stem.to_string(), p.clone()))
+        })
+        .collect();
+    if !named.is_empty() {
+        return Ok(Layout::Named(named));
+    }
     let mut archives: Vec<(u64, PathBuf)> = entries
         .iter()
         .filter(|p| p.is_file() && p.extension().is_some_and(|e| e.eq_ignore_ascii_case("npz")))
@@ -47,7 +66,7 @@ pub(super) fn layout(dir: &Path) -> Result<Layout, RunError> {
     }
     Err(RunError::file(
         dir,
-        "no samples found (expected test_data_set_N folders, input_K.pb/.npy files, numbered .npz archives or, in batch, a subfolder per model)",
+        "no samples found (expected test_data_set_N folders, input_K.pb/.npy files, files named after the model's inputs, numbered .npz archives or, in batch, a subfolder per model)",
     ))
 }
 

@@ -4,6 +4,7 @@
 pub mod batch;
 pub mod catalog;
 pub mod cli;
+pub mod files;
 pub mod measure;
 pub mod onnx;
 pub mod plan;
@@ -11,3 +12,4 @@ pub mod report;
 pub mod rewrite;
 pub mod run;
 pub mod scan;
+pub mod text;

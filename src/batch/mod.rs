@@ -27,7 +27,7 @@ mod pool;
 
 use serde::Serialize;
 
-pub use discover::{Job, discover};
+pub use discover::{Discovery, Job, Skipped, discover};
 pub use pool::run_ordered;
 
 use crate::measure::CAUTION;

@@ -16,6 +16,7 @@ use crate::report::summary::{ModelSummary, Verdict, summarize};
 use crate::report::{drift_table, plan_table};
 use crate::{rewrite, run};
 
+use super::access::{self, Extras};
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
 use super::plan_args::{Conversion, PlanArgs};
@@ -50,6 +51,16 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let conversion = args.plan.conversion()?;
+    let extras = Extras {
+        reads: [args.plan.files(), args.inputs.files()].concat(),
+        writes: vec![("the report", args.report.as_deref())],
+    };
+    access::check_model(
+        &Model::load(&args.model)?,
+        args.output.as_deref(),
+        &extras,
+        false,
+    )?;
     let audit = audit_model(&args.model, &conversion, &args.inputs, &opts)?;
     if let Some(out) = &args.output {
         audit.rewritten.save(out, &SaveOptions::default())?;

@@ -3,6 +3,7 @@
 //! Exit codes: 0 success; 1 a budget was exceeded or a site could not be served; 2 an error
 //! (bad input, unreadable model, invalid options).
 
+mod access;
 mod audit;
 mod batch;
 mod catalog;
@@ -69,6 +70,7 @@ pub fn main() -> ExitCode {
             .unwrap_or_else(|| "unknown cause".into());
         eprintln!("actswap: internal error{at}: {msg}");
     }));
+    crate::files::temps::remove_on_signals();
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
         Err(e) => {

@@ -1,6 +1,6 @@
 //! What to convert to (`--to`, `--target`, `--site`), shared by `swap` and `audit`.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use anyhow::{Result, bail};
 
@@ -47,6 +47,17 @@ impl PlanArgs {
             profile,
             sites: self.sites.clone(),
         })
+    }
+}
+
+impl PlanArgs {
+    /// The profile file `--target` reads, when it names one.
+    pub fn files(&self) -> Vec<PathBuf> {
+        self.target
+            .iter()
+            .map(PathBuf::from)
+            .filter(|p| p.is_file())
+            .collect()
     }
 }
 

@@ -3,17 +3,18 @@
 use crate::scan::{ParamValue, ScanReport, Site};
 
 use super::table;
+use crate::text::escape;
 
 /// Renders the site table and the summary.
 pub fn render(report: &ScanReport) -> String {
     let opsets: Vec<String> = report
         .opsets
         .iter()
-        .map(|(d, v)| format!("{} {v}", if d.is_empty() { "ai.onnx" } else { d }))
+        .map(|(d, v)| format!("{} {v}", escape(if d.is_empty() { "ai.onnx" } else { d })))
         .collect();
     let mut out = format!(
         "model {}  (opsets: {})\n\n",
-        report.model,
+        escape(&report.model),
         opsets.join(", ")
     );
     if report.sites.is_empty() {
@@ -59,7 +60,7 @@ fn row(s: &Site) -> Vec<String> {
             .join(" ")
     };
     let form = match (&s.domain, s.form) {
-        (Some(d), _) => format!("fused ({d})"),
+        (Some(d), _) => format!("fused ({})", escape(d)),
         (None, f) => format!("{f:?}").to_lowercase(),
     };
     let mut notes = s.notes.join("; ");
@@ -75,10 +76,10 @@ fn row(s: &Site) -> Vec<String> {
         s.kind.clone(),
         params,
         form,
-        s.ops.join(" "),
-        format!("{} -> {}", s.input, s.output),
-        s.graph.clone(),
-        notes,
+        escape(&s.ops.join(" ")).into_owned(),
+        format!("{} -> {}", escape(&s.input), escape(&s.output)),
+        escape(&s.graph).into_owned(),
+        escape(&notes).into_owned(),
     ]
 }
 

@@ -350,6 +350,24 @@ fn external_data_must_be_a_regular_file_and_never_hangs() {
     let fifo = tmp.path().join("model.onnx");
     mkfifo(&fifo);
     assert_refused(&bounded(&["info", path(&fifo)]), "is a FIFO", "FIFO model");
+    let profile = tmp.path().join("target.toml");
+    mkfifo(&profile);
+    let m = repo("sample-models/orchard-grader.onnx");
+    let o = tmp.path().join("out.onnx");
+    let args = ["swap", path(&m), "-o", path(&o), "--target", path(&profile)];
+    assert_refused(&bounded(&args), "is a FIFO", "FIFO profile");
+}
+
+/// `drift` reads external data through tract: a FIFO there is refused before tract opens it.
+#[test]
+fn drift_refuses_external_data_that_is_no_file() {
+    let tmp = tempfile::tempdir().unwrap();
+    let ext = external_copy(tmp.path());
+    std::fs::remove_file(ext.join("weights.bin")).unwrap();
+    mkfifo(&ext.join("weights.bin"));
+    let m = ext.join("model.onnx");
+    let args = [&["drift", path(&m), path(&m)][..], &FAST].concat();
+    assert_refused(&bounded(&args), "is a FIFO, not a regular file", "drift");
 }
 
 /// A model whose messages carry fields of a newer IR (tests/corpus/unknown-fields): a rewrite

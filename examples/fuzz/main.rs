@@ -1,7 +1,7 @@
 //! Fuzzes the model loader and the rewriter with mutations of the repository's models.
 //!
 //! Every input is a seed model (tests/fixtures, tests/corpus, sample-models) changed by one to
-//! four mutations: byte flips, truncation, inserted or repeated bytes, and protobuf-aware edits
+//! three mutations: byte flips, truncation, inserted or repeated bytes, and protobuf-aware edits
 //! (a varint set to an edge value, such as a dim, a data type or an opset; a length-delimited
 //! field replaced by an edge string, deleted, repeated or given a wrong length). Each input goes
 //! through decode -> index (validation) -> info -> scan -> plan (`*=primitive`) -> rewrite ->

@@ -10,9 +10,10 @@ use std::process::ExitCode;
 use anyhow::{Context, Result, bail};
 
 use crate::measure::{self, Budgets, CompareOptions, LatencyOptions, Tolerance};
-use crate::onnx::Model;
+use crate::onnx::{Model, ModelIndex};
 use crate::report::drift_table;
 use crate::run;
+use crate::text::escape_path;
 
 use super::inputs::InputArgs;
 use super::{EXIT_OVER_BUDGET, output};
@@ -47,6 +48,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let original = Model::load(&args.original)?;
     let rewritten = Model::load(&args.rewritten)?;
+    // Validation before tract reads anything (external data that is a FIFO would block it).
+    for (model, path) in [(&original, &args.original), (&rewritten, &args.rewritten)] {
+        ModelIndex::build(model).with_context(|| format!("'{}'", escape_path(path)))?;
+    }
     let tract = run::prepare(&original.encode(), Some(original.dir()))
         .with_context(|| format!("'{}'", args.original.display()))?;
     let loaded = args.inputs.load(tract.inputs())?;

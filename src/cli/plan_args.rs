@@ -4,6 +4,7 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{Result, bail};
 
+use crate::files::open_regular;
 use crate::onnx::ModelIndex;
 use crate::plan::profile::Profile;
 use crate::plan::request::Request;
@@ -38,6 +39,10 @@ impl PlanArgs {
             .iter()
             .map(|t| Request::parse(t))
             .collect::<Result<_>>()?;
+        if let Some(file) = self.target.as_deref().map(Path::new).filter(|p| p.exists()) {
+            // A FIFO or a device would block the profile's read.
+            open_regular(file, "target profile")?;
+        }
         let profile = self.target.as_deref().map(Profile::load).transpose()?;
         if requests.is_empty() && profile.is_none() {
             bail!("say what to convert to: --to KIND=FORM (repeatable) or --target PROFILE");

@@ -9,7 +9,7 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result};
 
-pub use discover::{Job, discover};
+pub use discover::{Discovery, Job, Skipped, discover};
 pub use pool::run_ordered;
 
 use crate::audit::{self, Audit, Conversion, InputSource, Verdict};

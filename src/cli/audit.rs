@@ -8,12 +8,13 @@ use std::process::ExitCode;
 use anyhow::Result;
 
 use crate::audit;
-use crate::onnx::SaveOptions;
+use crate::onnx::{Model, SaveOptions};
 use crate::onnx::model::write_atomic;
 use crate::report::footer::{self, Judged};
 use crate::report::html::{self, ModelSection};
 use crate::report::{drift_table, plan_table};
 
+use super::access::{self, Extras};
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
 use super::plan_args::PlanArgs;
@@ -57,6 +58,16 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let conversion = args.plan.conversion()?;
+    let extras = Extras {
+        reads: [args.plan.files(), args.inputs.files()].concat(),
+        writes: vec![("the report", args.report.as_deref())],
+    };
+    access::check_model(
+        &Model::load(&args.model)?,
+        args.output.as_deref(),
+        &extras,
+        false,
+    )?;
     let inputs = args.inputs.source(false)?;
     let audit = audit::audit(&args.model, &conversion, &inputs, &opts)?;
     let judgement = audit.judgement();

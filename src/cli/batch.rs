@@ -18,7 +18,9 @@ use crate::batch::{self, Converted, Job};
 use crate::onnx::model::write_atomic;
 use crate::report::batch_table;
 use crate::report::html::{self, ModelSection};
+use crate::text::escape_path;
 
+use super::access::{self, Extras};
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
 use super::plan_args::PlanArgs;
@@ -72,7 +74,19 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let conversion = args.plan.conversion()?;
     let inputs = args.inputs.source(true)?;
-    let jobs = batch::discover(&args.paths, &args.out_dir)?;
+    let found = batch::discover(&args.paths, &args.out_dir)?;
+    let extras = Extras {
+        reads: [args.plan.files(), args.inputs.files()].concat(),
+        writes: vec![
+            ("the Markdown summary", args.markdown.as_deref()),
+            ("the report", args.report.as_deref()),
+        ],
+    };
+    access::check_batch(&found.jobs, &args.out_dir, &extras)?;
+    for s in &found.skipped {
+        eprintln!("actswap: skipped {}: {}", escape_path(&s.path), s.reason);
+    }
+    let jobs = found.jobs;
     let threads = args
         .jobs
         .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()))

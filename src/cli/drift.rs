@@ -12,10 +12,11 @@ use anyhow::{Context, Result, bail};
 
 use crate::audit::Judgement;
 use crate::measure::{self, Budgets, CompareOptions, DEFAULT_BUDGET, LatencyOptions, Tolerance};
-use crate::onnx::Model;
+use crate::onnx::{Model, ModelIndex};
 use crate::report::drift_table;
 use crate::report::footer::{self, Judged};
 use crate::run;
+use crate::text::escape_path;
 
 use super::inputs::InputArgs;
 use super::{exit_code, output};
@@ -51,6 +52,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let inputs = args.inputs.source(false)?;
     let original = Model::load(&args.original)?;
     let rewritten = Model::load(&args.rewritten)?;
+    // Validation before tract reads anything (external data that is a FIFO would block it).
+    for (model, path) in [(&original, &args.original), (&rewritten, &args.rewritten)] {
+        ModelIndex::build(model).with_context(|| format!("'{}'", escape_path(path)))?;
+    }
     let specs = run::input_specs(&original.encode())
         .with_context(|| format!("'{}'", args.original.display()))?;
     let loaded = inputs.load(&specs)?;

@@ -122,6 +122,29 @@ impl InputArgs {
         parts.join("; ")
     }
 
+    /// The files these options read: `--input` files and every file below `--inputs-dir`.
+    pub fn files(&self) -> Vec<PathBuf> {
+        let mut files: Vec<PathBuf> = self
+            .input
+            .iter()
+            .map(|b| match b.split_once('=') {
+                Some((_, file)) if !std::path::Path::new(b).is_file() => PathBuf::from(file),
+                _ => PathBuf::from(b),
+            })
+            .filter(|p| p.is_file())
+            .collect();
+        if let Some(dir) = &self.inputs_dir {
+            files.extend(
+                walkdir::WalkDir::new(dir)
+                    .into_iter()
+                    .filter_map(Result::ok)
+                    .filter(|e| e.file_type().is_file())
+                    .map(|e| e.into_path()),
+            );
+        }
+        files
+    }
+
     /// The random-input settings, validated.
     fn random(&self) -> Result<RandomInputs> {
         let dist = self.dist.unwrap_or(Dist::Normal);

@@ -4,6 +4,7 @@
 //! sites, over budget, nothing compared); 2 an error (bad input, unreadable model, invalid
 //! options).
 
+mod access;
 mod audit;
 mod batch;
 mod catalog;
@@ -86,6 +87,7 @@ pub fn main() -> ExitCode {
             .unwrap_or_else(|| "unknown cause".into());
         eprintln!("actswap: internal error{at}: {msg}");
     }));
+    crate::files::temps::remove_on_signals();
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
         Err(e) => {

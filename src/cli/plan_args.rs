@@ -1,8 +1,11 @@
 //! What to convert to (`--to`, `--target`, `--site`), shared by `swap` and `audit`.
 
+use std::path::{Path, PathBuf};
+
 use anyhow::Result;
 
 use crate::audit::Conversion;
+use crate::files::open_regular;
 use crate::plan::profile::Profile;
 use crate::plan::request::Request;
 
@@ -29,7 +32,20 @@ impl PlanArgs {
             .iter()
             .map(|t| Request::parse(t))
             .collect::<Result<_>>()?;
+        if let Some(file) = self.target.as_deref().map(Path::new).filter(|p| p.exists()) {
+            // A FIFO or a device would block the profile's read.
+            open_regular(file, "target profile")?;
+        }
         let profile = self.target.as_deref().map(Profile::load).transpose()?;
         Conversion::new(requests, profile, self.sites.clone())
+    }
+
+    /// The profile file `--target` reads, when it names one.
+    pub fn files(&self) -> Vec<PathBuf> {
+        self.target
+            .iter()
+            .map(PathBuf::from)
+            .filter(|p| p.is_file())
+            .collect()
     }
 }

@@ -3,7 +3,7 @@
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use anyhow::{Context, Result, bail};
+use anyhow::{Context, Result};
 
 use crate::audit::{Judgement, Verdict, readiness};
 use crate::onnx::{Model, ModelIndex, SaveOptions};
@@ -11,6 +11,7 @@ use crate::report::footer::{self, Judged};
 use crate::report::plan_table;
 use crate::rewrite;
 
+use super::access::{self, Extras};
 use super::plan_args::PlanArgs;
 use super::{exit_code, output};
 
@@ -50,16 +51,12 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode> {
     let conversion = args.plan.conversion()?;
     let model = Model::load(&args.model)?;
-    if let Some(out) = &args.output
-        && !args.overwrite
-        && out.canonicalize().ok() == args.model.canonicalize().ok()
-        && out.exists()
-    {
-        bail!(
-            "output '{}' is the input model; refusing to overwrite it (use --overwrite)",
-            out.display()
-        );
-    }
+    let out = args.output.as_deref().filter(|_| !args.dry_run);
+    let reads = Extras {
+        reads: args.plan.files(),
+        ..Extras::default()
+    };
+    access::check_model(&model, out, &reads, args.overwrite)?;
     let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
     let plan = conversion.plan(&index, &args.model)?;
     let (rewritten, applied) = rewrite::apply(&model, &index, &plan)?;

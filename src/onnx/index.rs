@@ -1,8 +1,10 @@
 //! The graph index: who produces and who consumes each tensor, constant values, graph inputs and
 //! outputs, value_info, opsets and a topological order, for the main graph, every subgraph (If,
 //! Loop, Scan attributes, to any depth) and every local function. Building it validates the model:
-//! a cycle, a node reading an undefined tensor or a tensor whose data disagrees with its shape is an
-//! error.
+//! a cycle, a node reading an undefined tensor, a name defined twice in a graph (ONNX IR: graphs are
+//! in single static assignment form, and the onnx checker refuses a node output that repeats a
+//! graph input, an initializer or a name of an enclosing graph, and a repeated initializer or
+//! graph input name) or a tensor whose data disagrees with its shape is an error.
 
 use std::cmp::Reverse;
 use std::collections::{BTreeMap, BinaryHeap};
@@ -14,10 +16,11 @@ use anyhow::{Context, Result, bail};
 use super::external;
 use super::model::Model;
 use super::proto::{
-    AttributeProto, FunctionProto, GraphProto, NodeProto, OperatorSetIdProto, TensorProto,
-    ValueInfoProto, attribute_proto::AttributeType,
+    AttributeProto, FunctionProto, GraphProto, NodeProto, OperatorSetIdProto, SparseTensorProto,
+    TensorProto, ValueInfoProto, attribute_proto::AttributeType,
 };
 use super::tensor::{self, TensorValue};
+use crate::text::escape;
 
 /// Tensors larger than this are never treated as constants by queries (they are weights).
 pub const CONSTANT_QUERY_LIMIT: u64 = 1 << 20;
@@ -180,10 +183,27 @@ impl<'m> ModelIndex<'m> {
     ) -> Result<()> {
         let inputs: Vec<&str> = graph.input.iter().map(|v| v.name()).collect();
         let outputs: Vec<&str> = graph.output.iter().map(|v| v.name()).collect();
+        let shown = escape(&path);
+        if let Some(name) = first_repeat(inputs.iter().copied()) {
+            bail!(
+                "graph {shown}: graph input '{}' is declared twice (ONNX requires unique names in a graph)",
+                escape(name)
+            );
+        }
+        if let Some(name) = first_repeat(graph.initializer.iter().map(|t| t.name())) {
+            bail!(
+                "graph {shown}: initializer '{}' is defined twice (ONNX requires unique names in a graph)",
+                escape(name)
+            );
+        }
         let initializers: HashMap<&str, &TensorProto> =
             graph.initializer.iter().map(|t| (t.name(), t)).collect();
-        for t in &graph.initializer {
-            validate_tensor(t, self.model).with_context(|| format!("graph {path}"))?;
+        for t in graph
+            .initializer
+            .iter()
+            .chain(graph.sparse_initializer.iter().flat_map(sparse_parts))
+        {
+            validate_tensor(t, self.model).with_context(|| format!("graph {shown}"))?;
         }
         let mut value_info = HashMap::new();
         for v in graph
@@ -276,23 +296,39 @@ impl<'m> ModelIndex<'m> {
     ) -> Result<usize> {
         let mut producer = HashMap::with_capacity(nodes.len());
         let mut consumers: HashMap<&str, Vec<usize>> = HashMap::with_capacity(nodes.len());
+        let shown = escape(&path);
         for (i, n) in nodes.iter().enumerate() {
-            for a in &n.attribute {
-                if let Some(t) = &a.t {
-                    validate_tensor(t, self.model).with_context(|| {
-                        format!(
-                            "graph {path}, node '{}' ({})",
-                            node_label(n, i),
-                            n.op_type()
-                        )
-                    })?;
-                }
+            let node = || {
+                format!(
+                    "node '{}' ({})",
+                    escape(&node_label(n, i)),
+                    escape(n.op_type())
+                )
+            };
+            for t in n.attribute.iter().flat_map(attribute_tensors) {
+                validate_tensor(t, self.model)
+                    .with_context(|| format!("graph {shown}, {}", node()))?;
             }
             for o in n.output.iter().filter(|o| !o.is_empty()) {
+                if defined.contains(o.as_str()) {
+                    let what = if inputs.contains(&o.as_str()) {
+                        "a graph input"
+                    } else if initializers.contains_key(o.as_str()) {
+                        "an initializer"
+                    } else {
+                        "a name of an enclosing graph"
+                    };
+                    bail!(
+                        "graph {shown}: {} writes '{}', which is already {what} (ONNX graphs assign each name once)",
+                        node(),
+                        escape(o)
+                    );
+                }
                 if producer.insert(o.as_str(), i).is_some() {
                     bail!(
-                        "graph {path}: tensor '{o}' is produced by more than one node (the second is '{}')",
-                        node_label(n, i)
+                        "graph {shown}: tensor '{}' is produced by more than one node (the second is '{}')",
+                        escape(o),
+                        escape(&node_label(n, i))
                     );
                 }
             }
@@ -314,9 +350,10 @@ impl<'m> ModelIndex<'m> {
             for &name in &r {
                 if !defined.contains(name) {
                     bail!(
-                        "graph {path}: node '{}' ({}) reads undefined tensor '{name}'",
-                        node_label(n, i),
-                        n.op_type()
+                        "graph {shown}: node '{}' ({}) reads undefined tensor '{}'",
+                        escape(&node_label(n, i)),
+                        escape(n.op_type()),
+                        escape(name)
                     );
                 }
             }
@@ -337,11 +374,14 @@ impl<'m> ModelIndex<'m> {
         }
         for &o in &outputs {
             if !defined.contains(o) {
-                bail!("graph {path}: output '{o}' is not produced by any node nor an input");
+                bail!(
+                    "graph {shown}: output '{}' is not produced by any node nor an input",
+                    escape(o)
+                );
             }
         }
-        let order =
-            topological_order(nodes, &reads, &producer).with_context(|| format!("graph {path}"))?;
+        let order = topological_order(nodes, &reads, &producer)
+            .with_context(|| format!("graph {shown}"))?;
         let outputs_set = outputs.iter().copied().collect();
         self.graphs.push(GraphIndex {
             path,
@@ -526,8 +566,8 @@ fn topological_order(
             if d == i {
                 bail!(
                     "node '{}' ({}) reads its own output: the graph has a cycle",
-                    node_label(&nodes[i], i),
-                    nodes[i].op_type()
+                    escape(&node_label(&nodes[i], i)),
+                    escape(nodes[i].op_type())
                 );
             }
             indegree[i] += 1;
@@ -550,8 +590,8 @@ fn topological_order(
         let stuck = (0..n).find(|&i| indegree[i] > 0).unwrap_or(0);
         bail!(
             "the graph has a cycle through node '{}' ({})",
-            node_label(&nodes[stuck], stuck),
-            nodes[stuck].op_type()
+            escape(&node_label(&nodes[stuck], stuck)),
+            escape(nodes[stuck].op_type())
         );
     }
     Ok(order)
@@ -559,37 +599,34 @@ fn topological_order(
 
 /// Checks a stored tensor against its shape without reading external bytes.
 fn validate_tensor(t: &TensorProto, model: &Model) -> Result<()> {
-    let name = t.name();
     let n = tensor::element_count(t, ABSURD_ELEMENTS)?;
-    let dt = tensor::data_type(t)?;
-    if external::is_external(t) {
-        let r = external::external_ref(t)?;
-        let path = external::resolve(model.dir(), &r.location)
-            .with_context(|| format!("tensor '{name}'"))?;
-        let size = std::fs::metadata(&path)?.len();
-        let end = r.length.map_or(Some(size), |l| r.offset.checked_add(l));
-        if end.is_none_or(|e| e > size) {
-            bail!(
-                "tensor '{name}': external data range (offset {}, length {:?}) lies outside '{}' ({size} bytes)",
-                r.offset,
-                r.length,
-                r.location
-            );
-        }
-        return Ok(());
-    }
-    if let (Some(raw), Some(size)) = (&t.raw_data, tensor::element_size(dt))
-        && raw.len() as u64 != n as u64 * size as u64
-    {
-        {
-            bail!(
-                "tensor '{name}': raw_data length {} disagrees with its shape {:?} ({n} elements of {size} bytes)",
-                raw.len(),
-                t.dims
-            );
-        }
-    }
-    Ok(())
+    let external_bytes = external::is_external(t)
+        .then(|| external::stored_len(model.dir(), t))
+        .transpose()
+        .with_context(|| format!("tensor '{}'", escape(t.name())))?;
+    tensor::check_data(t, n as u64, external_bytes)
+        .with_context(|| format!("tensor '{}'", escape(t.name())))
+}
+
+/// The tensors an attribute holds: `t`, `tensors`, and the parts of its sparse tensors.
+fn attribute_tensors(a: &AttributeProto) -> impl Iterator<Item = &TensorProto> {
+    a.t.iter().chain(&a.tensors).chain(
+        a.sparse_tensor
+            .iter()
+            .chain(&a.sparse_tensors)
+            .flat_map(sparse_parts),
+    )
+}
+
+/// A sparse tensor's values and indices.
+fn sparse_parts(s: &SparseTensorProto) -> impl Iterator<Item = &TensorProto> {
+    s.values.iter().chain(&s.indices)
+}
+
+/// The first name that occurs twice.
+fn first_repeat<'a>(names: impl Iterator<Item = &'a str>) -> Option<&'a str> {
+    let mut seen = HashSet::new();
+    names.into_iter().find(|n| !seen.insert(*n))
 }
 
 /// The value of a Constant node (value, value_float(s), value_int(s)).

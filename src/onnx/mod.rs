@@ -8,6 +8,7 @@ pub mod index;
 pub mod model;
 pub mod summary;
 pub mod tensor;
+mod unknown;
 pub mod walk;
 
 /// Types generated from `proto/onnx.proto` by prost (see build.rs).

@@ -1,13 +1,14 @@
 //! Loading and saving ONNX model files without losing a byte.
 //!
-//! A model loaded and saved without changes is written back from the very bytes it was read from;
-//! a changed model is re-encoded (our schema is complete and field-ordered, so every untouched
-//! message keeps its bytes). Saving goes through a temporary file in the destination folder and a
-//! rename, never overwrites the input unless asked, and brings external data along.
+//! A model loaded and saved without changes is written back from the very bytes it was read from.
+//! A changed model is re-encoded (our schema is complete and field-ordered), and every message
+//! it shares with the file it came from keeps that file's bytes, fields this schema does not know
+//! (from a newer IR) included; see [`super::unknown`]. Saving goes through a temporary file in the
+//! destination folder and a rename, never overwrites the input unless asked, never writes over
+//! anything but a regular file, and brings external data along.
 
 use std::collections::BTreeSet;
-use std::fs::File;
-use std::io::Write;
+use std::io::Read;
 use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result, bail};
@@ -16,7 +17,10 @@ use prost::Message;
 
 use super::external;
 use super::proto::{ModelProto, StringStringEntryProto, TensorProto, tensor_proto::DataLocation};
-use super::walk;
+use super::{unknown, walk};
+use crate::files::temps::LiveTemp;
+use crate::files::{FileAccess, open::kind_of, open_regular};
+use crate::text::escape_path;
 
 /// The protobuf limit on one serialized message (2 GiB); larger models need external data.
 pub const PROTOBUF_LIMIT: u64 = (1 << 31) - 1;
@@ -29,6 +33,8 @@ const EXTERNALIZE_MIN_BYTES: usize = 1024;
 pub struct Model {
     proto: ModelProto,
     original: Option<Bytes>,
+    /// The bytes of the file the model (or the model it derives from) was read from.
+    source: Option<Bytes>,
     path: PathBuf,
     dir: PathBuf,
 }
@@ -54,14 +60,14 @@ impl Default for SaveOptions {
 impl Model {
     /// Memory-maps and decodes a model file.
     pub fn load(path: &Path) -> Result<Model> {
-        let file = File::open(path).with_context(|| format!("cannot open '{}'", path.display()))?;
+        let file = open_regular(path, "model")?;
         let len = file.metadata()?.len();
         let bytes = if len == 0 {
             Bytes::new()
         } else {
             // SAFETY: read-only map owned by the Bytes; the input file is never written by us.
             let map = unsafe { memmap2::MmapOptions::new().map(&file) }
-                .with_context(|| format!("cannot map '{}'", path.display()))?;
+                .with_context(|| format!("cannot map '{}'", escape_path(path)))?;
             Bytes::from_owner(map)
         };
         let dir = path
@@ -76,7 +82,7 @@ impl Model {
             .unwrap_or(Path::new("."))
             .to_path_buf();
         Model::from_bytes(bytes, path.to_path_buf(), dir)
-            .with_context(|| format!("'{}'", path.display()))
+            .with_context(|| format!("'{}'", escape_path(path)))
     }
 
     /// Decodes a model from bytes; `dir` is where its external data lives.
@@ -84,14 +90,23 @@ impl Model {
         if bytes.is_empty() {
             bail!("the file is empty, not an ONNX model");
         }
-        let proto = ModelProto::decode(bytes.clone())
-            .map_err(|e| anyhow::anyhow!("not an ONNX model, or a truncated one ({e})"))?;
+        let proto = ModelProto::decode(bytes.clone()).map_err(|e| {
+            // prost's message for its nesting limit (the protobuf default of 100 levels).
+            if e.to_string().contains("recursion limit") {
+                anyhow::anyhow!(
+                    "the model nests messages (subgraphs, attributes, types) deeper than the 100 levels protobuf decoding allows"
+                )
+            } else {
+                anyhow::anyhow!("not an ONNX model, or a truncated one ({e})")
+            }
+        })?;
         if proto.graph.is_none() || proto.ir_version.is_none() {
             bail!("not an ONNX model (no ir_version or no graph)");
         }
         Ok(Model {
             proto,
-            original: Some(bytes),
+            original: Some(bytes.clone()),
+            source: Some(bytes),
             path,
             dir,
         })
@@ -102,8 +117,21 @@ impl Model {
         Model {
             proto,
             original: None,
+            source: None,
             path: PathBuf::new(),
             dir,
+        }
+    }
+
+    /// A changed copy of this model: `proto` replaces its content, and saving it keeps the bytes
+    /// of every message it shares with the file this model was read from.
+    pub fn with_proto(&self, proto: ModelProto) -> Model {
+        Model {
+            proto,
+            original: None,
+            source: self.source.clone(),
+            path: PathBuf::new(),
+            dir: self.dir.clone(),
         }
     }
 
@@ -127,12 +155,58 @@ impl Model {
         &self.dir
     }
 
-    /// The serialized model: the original bytes while unchanged, else a fresh encoding.
+    /// The serialized model: the original bytes while unchanged, else a fresh encoding of the
+    /// fields our schema knows (what a runtime needs).
     pub fn encode(&self) -> Bytes {
         match &self.original {
             Some(b) => b.clone(),
             None => Bytes::from(self.proto.encode_to_vec()),
         }
+    }
+
+    /// The model as [`Model::save`] writes it: the original bytes while unchanged, else a fresh
+    /// encoding in which every message shared with the source file keeps its bytes, fields
+    /// unknown to our schema included. Fails rather than drop an unknown field.
+    pub fn encode_lossless(&self) -> Result<Bytes> {
+        match (&self.original, &self.source) {
+            (Some(b), _) => Ok(b.clone()),
+            (None, Some(source)) => unknown::encode_keeping(source, &self.proto),
+            (None, None) => Ok(Bytes::from(self.proto.encode_to_vec())),
+        }
+    }
+
+    /// Adds the files this model was read from to `access`: the model file and every external
+    /// data file (refusing a location that is not a regular file inside the model's folder).
+    pub fn record_reads(&self, access: &mut FileAccess) -> Result<()> {
+        if !self.path.as_os_str().is_empty() {
+            access.read("the input model", &self.path);
+        }
+        for location in self.external_locations()? {
+            let path = external::resolve(&self.dir, &location)
+                .with_context(|| format!("'{}'", escape_path(&self.path)))?;
+            access.read("external data of the input model", path);
+        }
+        Ok(())
+    }
+
+    /// Adds the files [`Model::save`] to `out` may write to `access`: `out`, the external data
+    /// file of an oversized model (`<out>.data`) and the copies of external data beside `out`.
+    pub fn record_writes(&self, out: &Path, access: &mut FileAccess) -> Result<()> {
+        access.write("the converted model", out);
+        let out_dir = parent_dir(out);
+        access.write(
+            "the external data of the converted model",
+            out_dir.join(external_data_name(out)),
+        );
+        if !same_file(&self.dir, &out_dir) {
+            for location in self.external_locations()? {
+                access.write(
+                    "the copy of the input's external data",
+                    out_dir.join(&location),
+                );
+            }
+        }
+        Ok(())
     }
 
     /// Every distinct external data location the model refers to.
@@ -157,25 +231,22 @@ impl Model {
 
     /// Writes the model to `out` atomically, with its external data beside it.
     pub fn save(&self, out: &Path, opts: &SaveOptions) -> Result<()> {
-        let out_dir = match out.parent() {
-            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-            _ => PathBuf::from("."),
-        };
+        let out_dir = parent_dir(out);
         if !self.path.as_os_str().is_empty() && same_file(&self.path, out) && !opts.overwrite_input
         {
             bail!(
                 "output '{}' is the input model; refusing to overwrite it",
-                out.display()
+                escape_path(out)
             );
         }
-        let mut encoded_model = None;
-        if self.proto.encoded_len() as u64 > opts.proto_limit {
+        let bytes = if self.proto.encoded_len() as u64 > opts.proto_limit {
             let data_name = external_data_name(out);
-            encoded_model = Some(self.save_externalized(&out_dir, &data_name, opts)?);
+            self.save_externalized(&out_dir, &data_name, opts)?
         } else {
+            let bytes = self.encode_lossless()?;
             self.copy_external_data(&out_dir)?;
-        }
-        let bytes = encoded_model.unwrap_or_else(|| self.encode());
+            bytes
+        };
         write_atomic(out, &bytes)
     }
 
@@ -192,8 +263,15 @@ impl Model {
                 std::fs::create_dir_all(parent)
                     .with_context(|| format!("cannot create '{}'", parent.display()))?;
             }
-            let data = std::fs::read(&src)
-                .with_context(|| format!("cannot read external data '{location}'"))?;
+            let mut data = Vec::new();
+            open_regular(&src, "external data file")?
+                .read_to_end(&mut data)
+                .with_context(|| {
+                    format!(
+                        "cannot read external data '{}'",
+                        crate::text::escape(&location)
+                    )
+                })?;
             write_atomic(&dst, &data)?;
         }
         Ok(())
@@ -207,6 +285,15 @@ impl Model {
         data_name: &str,
         opts: &SaveOptions,
     ) -> Result<Bytes> {
+        if self
+            .source
+            .as_ref()
+            .is_some_and(|s| unknown::has_unknown_fields(s))
+        {
+            bail!(
+                "the converted model needs its initializers in external data, and its source holds fields this version of actswap does not know; they would be lost, so it is not written"
+            );
+        }
         self.copy_external_data(out_dir)?;
         let mut proto = self.proto.clone();
         let mut data: Vec<u8> = Vec::new();
@@ -260,29 +347,29 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-/// Writes `bytes` to a temporary file beside `path`, flushes it, then renames it into place.
-pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p,
-        _ => Path::new("."),
-    };
-    let mut tmp = tempfile::Builder::new()
-        .prefix(".actswap-")
-        .tempfile_in(dir)
-        .with_context(|| format!("cannot create a temporary file in '{}'", dir.display()))?;
-    // tempfile creates files readable by their owner only; a model is an ordinary file.
-    #[cfg(unix)]
-    {
-        use std::os::unix::fs::PermissionsExt;
-        tmp.as_file()
-            .set_permissions(std::fs::Permissions::from_mode(0o644))
-            .with_context(|| format!("cannot write '{}'", path.display()))?;
+/// The folder a file path lies in (`.` for a bare name).
+fn parent_dir(path: &Path) -> PathBuf {
+    match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
     }
+}
+
+/// Writes `bytes` to a temporary file beside `path`, flushes it, then renames it into place.
+/// Refuses to replace anything but a regular file (a FIFO, a device node or a folder stays).
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    if let Ok(meta) = std::fs::metadata(path)
+        && !meta.is_file()
+    {
+        bail!(
+            "refusing to write '{}': it is {}, not a regular file",
+            escape_path(path),
+            kind_of(&meta)
+        );
+    }
+    let mut tmp = LiveTemp::new_in(&parent_dir(path))?;
     tmp.write_all(bytes)
-        .and_then(|_| tmp.as_file().sync_all())
-        .with_context(|| format!("cannot write '{}'", path.display()))?;
+        .with_context(|| format!("cannot write '{}'", escape_path(path)))?;
     tmp.persist(path)
-        .map_err(|e| e.error)
-        .with_context(|| format!("cannot write '{}'", path.display()))?;
-    Ok(())
+        .with_context(|| format!("cannot write '{}'", escape_path(path)))
 }

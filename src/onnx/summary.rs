@@ -9,6 +9,7 @@ use serde::Serialize;
 use super::index::{GraphKind, ModelIndex};
 use super::proto::{ValueInfoProto, tensor_proto::DataType};
 use super::tensor;
+use crate::text::escape;
 
 #[derive(Debug, Serialize)]
 pub struct Summary {
@@ -78,26 +79,29 @@ impl Summary {
         let opsets: Vec<String> = self
             .opsets
             .iter()
-            .map(|(d, v)| format!("{} {v}", if d.is_empty() { "ai.onnx" } else { d }))
+            .map(|(d, v)| format!("{} {v}", escape(if d.is_empty() { "ai.onnx" } else { d })))
             .collect();
-        let _ = writeln!(s, "model         {}", self.model);
+        let _ = writeln!(s, "model         {}", escape(&self.model));
         let _ = writeln!(
             s,
             "ir_version    {}   producer {} {}",
-            self.ir_version, self.producer_name, self.producer_version
+            self.ir_version,
+            escape(&self.producer_name),
+            escape(&self.producer_version)
         );
         let _ = writeln!(s, "opsets        {}", opsets.join(", "));
         render_graph(&mut s, &self.graph, true);
         for g in &self.subgraphs {
-            let _ = writeln!(s, "\nsubgraph {}", g.path);
+            let _ = writeln!(s, "\nsubgraph {}", escape(&g.path));
             render_graph(&mut s, g, false);
         }
         for g in &self.functions {
-            let _ = writeln!(s, "\n{}", g.path);
+            let _ = writeln!(s, "\n{}", escape(&g.path));
             render_graph(&mut s, g, false);
         }
         if !self.external_data.is_empty() {
-            let _ = writeln!(s, "\nexternal data {}", self.external_data.join(", "));
+            let shown: Vec<_> = self.external_data.iter().map(|l| escape(l)).collect();
+            let _ = writeln!(s, "\nexternal data {}", shown.join(", "));
         }
         s
     }
@@ -121,7 +125,7 @@ fn render_graph(s: &mut String, g: &GraphSummary, main: bool) {
     let ops: Vec<String> = g
         .op_counts
         .iter()
-        .map(|(op, n)| format!("{op} {n}"))
+        .map(|(op, n)| format!("{} {n}", escape(op)))
         .collect();
     let _ = writeln!(s, "nodes         {}: {}", g.nodes, ops.join(", "));
 }
@@ -134,7 +138,7 @@ fn value_text(v: &ValueSummary) -> String {
             let d: Vec<String> = dims
                 .iter()
                 .map(|d| match d {
-                    serde_json::Value::String(s) => s.clone(),
+                    serde_json::Value::String(s) => escape(s).into_owned(),
                     serde_json::Value::Null => "?".into(),
                     other => other.to_string(),
                 })
@@ -142,7 +146,7 @@ fn value_text(v: &ValueSummary) -> String {
             format!("[{}]", d.join(", "))
         }
     };
-    format!("{} {ty} {shape}", v.name)
+    format!("{} {ty} {shape}", escape(&v.name))
 }
 
 fn human_bytes(n: u64) -> String {

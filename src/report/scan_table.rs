@@ -4,17 +4,18 @@ use crate::catalog::ParamValue;
 use crate::scan::{ScanReport, Site};
 
 use super::table;
+use crate::text::escape;
 
 /// Renders the site table and the summary.
 pub fn render(report: &ScanReport) -> String {
     let opsets: Vec<String> = report
         .opsets
         .iter()
-        .map(|(d, v)| format!("{} {v}", if d.is_empty() { "ai.onnx" } else { d }))
+        .map(|(d, v)| format!("{} {v}", escape(if d.is_empty() { "ai.onnx" } else { d })))
         .collect();
     let mut out = format!(
         "model {}  (opsets: {})\n\n",
-        report.model,
+        escape(&report.model),
         opsets.join(", ")
     );
     if report.sites.is_empty() {
@@ -61,7 +62,7 @@ fn row(s: &Site) -> Vec<String> {
             .join(" ")
     };
     let form = match (&s.domain, s.spelling) {
-        (Some(d), _) => format!("fused ({d})"),
+        (Some(d), _) => format!("fused ({})", escape(d)),
         (None, f) => format!("{f:?}").to_lowercase(),
     };
     let mut notes = s.notes.join("; ");
@@ -77,10 +78,10 @@ fn row(s: &Site) -> Vec<String> {
         s.kind.id.to_string(),
         params,
         form,
-        s.ops.join(" "),
-        format!("{} -> {}", s.input, s.output),
-        s.graph.clone(),
-        notes,
+        escape(&s.ops.join(" ")).into_owned(),
+        format!("{} -> {}", escape(&s.input), escape(&s.output)),
+        escape(&s.graph).into_owned(),
+        escape(&notes).into_owned(),
     ]
 }
 

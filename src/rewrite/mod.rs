@@ -114,6 +114,7 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
     if patches.is_empty() {
         return Ok((model.clone(), applied));
     }
+    validate::input_order(index)?;
     let mut proto = model.proto().clone();
     // Deepest graphs first: a subgraph is found through its parent's node indices, which the
     // parent's own patches shift (the index lists every subgraph after its parent).
@@ -123,7 +124,7 @@ pub fn apply(model: &Model, index: &ModelIndex, plan: &Plan) -> Result<(Model, V
             .with_context(|| format!("graph {} not found", index.graphs[g].path))?;
         apply_patches(&mut target, list);
     }
-    let out = Model::from_proto(proto, model.dir().to_path_buf());
+    let out = model.with_proto(proto);
     validate::check(&out, &applied).context("the rewritten model failed validation")?;
     Ok((out, applied))
 }

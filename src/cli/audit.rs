@@ -16,7 +16,7 @@ use crate::report::{drift_table, plan_table};
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
 use super::plan_args::PlanArgs;
-use super::{EXIT_OVER_BUDGET, output};
+use super::{EXIT_OVER_BUDGET, output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -48,6 +48,11 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let conversion = args.plan.conversion()?;
     let inputs = args.inputs.source(false)?;
+    paths::model_file(&args.model, "audit")?;
+    paths::output_files(&[
+        ("-o", args.output.as_deref()),
+        ("--report", args.report.as_deref()),
+    ])?;
     let audit = audit::audit(&args.model, &conversion, &inputs, &opts)?;
     if let Some(out) = &args.output {
         audit.rewritten.save(out, &SaveOptions::default())?;

@@ -21,7 +21,7 @@ use crate::report::html::{self, ModelSection};
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
 use super::plan_args::PlanArgs;
-use super::{EXIT_ERROR, EXIT_OVER_BUDGET, output};
+use super::{EXIT_ERROR, EXIT_OVER_BUDGET, output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -67,6 +67,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let conversion = args.plan.conversion()?;
     let inputs = args.inputs.source(true)?;
+    paths::output_files(&[
+        ("--markdown", args.markdown.as_deref()),
+        ("--report", args.report.as_deref()),
+    ])?;
     let jobs = batch::discover(&args.paths, &args.out_dir)?;
     let threads = args
         .jobs

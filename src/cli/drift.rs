@@ -15,7 +15,7 @@ use crate::report::drift_table;
 use crate::run;
 
 use super::inputs::InputArgs;
-use super::{EXIT_OVER_BUDGET, output};
+use super::{EXIT_OVER_BUDGET, output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -46,6 +46,8 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let inputs = args.inputs.source(false)?;
+    paths::model_file(&args.original, "drift")?;
+    paths::model_file(&args.rewritten, "drift")?;
     let original = Model::load(&args.original)?;
     let rewritten = Model::load(&args.rewritten)?;
     let specs = run::input_specs(&original.encode())

@@ -10,7 +10,7 @@ use crate::report::plan_table;
 use crate::rewrite;
 
 use super::plan_args::PlanArgs;
-use super::{EXIT_OVER_BUDGET, output};
+use super::{EXIT_OVER_BUDGET, output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -43,6 +43,8 @@ pub struct Args {
 
 pub fn run(args: Args) -> Result<ExitCode> {
     let conversion = args.plan.conversion()?;
+    paths::model_file(&args.model, "swap")?;
+    paths::output_files(&[("-o", args.output.as_deref())])?;
     let model = Model::load(&args.model)?;
     if let Some(out) = &args.output
         && !args.overwrite

@@ -21,7 +21,7 @@ use super::{EXIT_OVER_BUDGET, output, paths};
 #[derive(Debug, clap::Args)]
 #[command(
     about = "Convert a model for a target and prove the swap: drift per site and output, latency",
-    after_help = "Examples:\n  actswap audit sample-models/orchard-grader.onnx --target piecewise-linear --dim batch=1\n  actswap audit model.onnx --to silu=hard_swish --input image=batch.npy --max-abs 1e-2 -o model.fast.onnx\n  actswap audit model.onnx --target core-opset13 --samples 8 --json > audit.json\n  actswap audit model.onnx --target piecewise-linear --report audit.html\n\nExit codes: 0 within budget, 1 over budget or unserved sites, 2 error."
+    after_help = "Examples:\n  actswap audit sample-models/orchard-grader.onnx --target piecewise-linear --dim batch=1\n  actswap audit model.onnx --to silu=hard_swish --input image=batch.npy --max-abs 1e-2 -o model.fast.onnx\n  actswap audit model.onnx --target core-opset13 --dim batch=1 --samples 8 --json > audit.json\n  actswap audit model.onnx --target piecewise-linear --dim batch=1 --report audit.html\n\nExit codes: 0 within budget, 1 over budget or unserved sites, 2 error."
 )]
 pub struct Args {
     /// The ONNX model file (never modified).

@@ -33,7 +33,7 @@ and nothing is written for it; the other models go on. Prints a summary per mode
 --json, --markdown and --report give it as JSON, as Markdown for a CI job summary and as a \
 self-contained HTML page. Drift on sample inputs certifies nothing for safety-relevant uses: \
 validate as your domain requires.",
-    after_help = "Examples:\n  actswap batch exported/ --target piecewise-linear --dim batch=1 -o converted/\n  actswap batch exported/ --to silu=hard_swish --max-abs 1e-2 -o converted/ --markdown summary.md --report batch.html\n\nExit codes: 0 all within budget, 1 some over budget or unserved, 2 some model failed."
+    after_help = "Examples:\n  actswap batch exported/ --target piecewise-linear --dim batch=1 -o converted/\n  actswap batch exported/ --to silu=hard_swish --dim batch=1 --max-abs 1e-2 -o converted/ --markdown summary.md --report batch.html\n\nExit codes: 0 all within budget, 1 some over budget or unserved, 2 some model failed."
 )]
 pub struct Args {
     /// Model files, or folders searched for .onnx files (inputs are never modified).

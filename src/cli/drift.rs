@@ -27,7 +27,7 @@ catalogue's worst-case error over it, and per graph output max abs, mean abs, RM
 cosine, the share beyond tolerance and top-1 agreement; then end-to-end and per-site latency. \
 Drift on sample inputs certifies nothing for safety-relevant uses: validate as your domain \
 requires.",
-    after_help = "Examples:\n  actswap drift model.onnx model.fast.onnx\n  actswap drift model.onnx model.fast.onnx --input image=batch.npy --max-abs 1e-3 --min-cosine 0.9999\n  actswap drift model.onnx model.fast.onnx --samples 8 --dist uniform --range=-4,4 --json\n\nExit codes: 0 within budget, 1 over budget, 2 error."
+    after_help = "Examples:\n  actswap drift model.onnx model.fast.onnx --dim batch=1\n  actswap drift model.onnx model.fast.onnx --input image=batch.npy --max-abs 1e-3 --min-cosine 0.9999\n  actswap drift model.onnx model.fast.onnx --dim batch=1 --samples 8 --dist uniform --range=-4,4 --json\n\nExit codes: 0 within budget, 1 over budget, 2 error."
 )]
 pub struct Args {
     /// The original ONNX model.

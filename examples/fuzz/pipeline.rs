@@ -73,7 +73,11 @@ fn pipeline(bytes: Vec<u8>, seed: &mutate::Seed, requests: &[Request]) -> Outcom
     }
     let report = scan::scan(&index);
     std::hint::black_box(scan_table::render(&report));
-    let plan = Plan::build(report.sites, &Policy::requests(requests), index.main().opset(""));
+    let plan = Plan::build(
+        report.sites,
+        &Policy::requests(requests),
+        index.main().opset(""),
+    );
     std::hint::black_box(plan_table::render(&plan));
     let (rewritten, _) = match rewrite::apply(&model, &index, &plan) {
         Ok(r) => r,

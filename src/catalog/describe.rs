@@ -64,6 +64,48 @@ fn approximations(kind: &Kind) -> Vec<Approximation> {
         .collect()
 }
 
+/// The columns of [`summary_row`].
+pub const SUMMARY_COLUMNS: [&str; 5] = ["kind", "parameters", "fused", "primitive", "title"];
+
+/// One line of the catalogue's summary: the id, each parameter with its default, the op the
+/// fused form writes and the least opset of each form (float32, scalar parameters), the title.
+pub fn summary_row(kind: &Kind) -> Vec<String> {
+    let params: Vec<String> = kind
+        .params
+        .iter()
+        .map(|p| {
+            // Shortest float32 digits; exponent form for bounds such as Clip's float32 max.
+            let v = p.default as f32;
+            if v.abs() >= 1e6 {
+                format!("{}={v:e}", p.name)
+            } else {
+                format!("{}={v}", p.name)
+            }
+        })
+        .collect();
+    let form = |form: Form, with_op: bool| match kind.least(form, false) {
+        Ok(e) => {
+            let opset = min_opset(&e.ops).unwrap_or(1);
+            match e.ops.first().filter(|_| with_op) {
+                Some(op) => format!("{} (opset {opset})", op.op_type),
+                None => format!("opset {opset}"),
+            }
+        }
+        Err(_) => "none".to_string(),
+    };
+    vec![
+        kind.id.to_string(),
+        if params.is_empty() {
+            "-".to_string()
+        } else {
+            params.join(" ")
+        },
+        form(Form::Fused, true),
+        form(Form::Primitive, false),
+        kind.title.to_string(),
+    ]
+}
+
 /// Human-readable description with sections Formula / Parameters / Source / Fused op / Forms /
 /// Emitted forms / Example / Numeric notes / Approximations.
 pub fn describe(kind: &Kind) -> String {

@@ -23,7 +23,7 @@ pub mod substitute;
 use std::collections::HashMap;
 use std::sync::OnceLock;
 
-pub use describe::{describe, to_json};
+pub use describe::{SUMMARY_COLUMNS, describe, summary_row, to_json};
 pub use emit::Form;
 pub use identify::{MATCH_RTOL, fits, identify, identify_channels, matches, probe_points};
 pub use kind::{ConstInput, FusedNode, FusedOp, Kind, Reading, normal_domain};

@@ -8,8 +8,8 @@ use std::process::ExitCode;
 use anyhow::Result;
 
 use crate::audit;
-use crate::onnx::{Model, SaveOptions};
 use crate::onnx::model::write_atomic;
+use crate::onnx::{Model, SaveOptions};
 use crate::report::footer::{self, Judged};
 use crate::report::html::{self, ModelSection};
 use crate::report::{drift_table, plan_table};
@@ -18,7 +18,7 @@ use super::access::{self, Extras};
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
 use super::plan_args::PlanArgs;
-use super::{exit_code, output};
+use super::{exit_code, output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -29,7 +29,7 @@ output, against the target's budget (or the flags'). The last line is the one ve
 the first failing reason among error, ops the target does not run (not_ready), unserved sites, \
 over budget and nothing compared. Drift on sample inputs certifies nothing for safety-relevant \
 uses: validate as your domain requires.",
-    after_help = "Examples:\n  actswap audit sample-models/orchard-grader.onnx --target piecewise-linear --dim batch=1\n  actswap audit model.onnx --to silu=hard_swish --input image=batch.npy --max-abs 1e-2 -o model.fast.onnx\n  actswap audit model.onnx --target core-opset13 --samples 8 --json > audit.json\n  actswap audit model.onnx --target piecewise-linear --report audit.html\n\nExit codes: 0 pass, 1 any other verdict, 2 error."
+    after_help = "Examples:\n  actswap audit sample-models/orchard-grader.onnx --target piecewise-linear --dim batch=1\n  actswap audit model.onnx --to silu=hard_swish --input image=batch.npy --max-abs 1e-2 -o model.fast.onnx\n  actswap audit model.onnx --target core-opset13 --dim batch=1 --samples 8 --json > audit.json\n  actswap audit model.onnx --target piecewise-linear --dim batch=1 --report audit.html\n\nExit codes: 0 pass, 1 any other verdict, 2 error."
 )]
 pub struct Args {
     /// The ONNX model file (never modified).
@@ -62,6 +62,11 @@ pub fn run(args: Args) -> Result<ExitCode> {
         reads: [args.plan.files(), args.inputs.files()].concat(),
         writes: vec![("the report", args.report.as_deref())],
     };
+    paths::model_file(&args.model, "audit")?;
+    paths::output_files(&[
+        ("-o", args.output.as_deref()),
+        ("--report", args.report.as_deref()),
+    ])?;
     access::check_model(
         &Model::load(&args.model)?,
         args.output.as_deref(),

@@ -24,7 +24,7 @@ use super::access::{self, Extras};
 use super::drift::MeasureArgs;
 use super::inputs::InputArgs;
 use super::plan_args::PlanArgs;
-use super::{exit_code, output};
+use super::{exit_code, output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -36,7 +36,7 @@ and nothing is written for it; the other models go on. Prints a summary per mode
 --json, --markdown and --report give it as JSON, as Markdown for a CI job summary and as a \
 self-contained HTML page. Drift on sample inputs certifies nothing for safety-relevant uses: \
 validate as your domain requires.",
-    after_help = "Examples:\n  actswap batch exported/ --target piecewise-linear --dim batch=1 -o converted/\n  actswap batch exported/ --to silu=hard_swish --max-abs 1e-2 -o converted/ --markdown summary.md --report batch.html\n\nOnly models whose verdict is pass are written (--write-failing writes every one).\nExit codes: 0 all pass, 1 some other verdict, 2 some model failed."
+    after_help = "Examples:\n  actswap batch exported/ --target piecewise-linear --dim batch=1 -o converted/\n  actswap batch exported/ --to silu=hard_swish --dim batch=1 --max-abs 1e-2 -o converted/ --markdown summary.md --report batch.html\n\nOnly models whose verdict is pass are written (--write-failing writes every one).\nExit codes: 0 all pass, 1 some other verdict, 2 some model failed."
 )]
 pub struct Args {
     /// Model files, or folders searched for .onnx files (inputs are never modified).
@@ -74,6 +74,10 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let conversion = args.plan.conversion()?;
     let inputs = args.inputs.source(true)?;
+    paths::output_files(&[
+        ("--markdown", args.markdown.as_deref()),
+        ("--report", args.report.as_deref()),
+    ])?;
     let found = batch::discover(&args.paths, &args.out_dir)?;
     let extras = Extras {
         reads: [args.plan.files(), args.inputs.files()].concat(),

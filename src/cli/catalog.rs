@@ -1,10 +1,12 @@
-//! `actswap catalog`: the activation kinds actswap knows, with formulas, sources and forms.
+//! `actswap catalog`: the activation kinds actswap knows. With no kind, one line per kind; with
+//! a kind, its formula, source, forms and approximations in full.
 
 use std::process::ExitCode;
 
 use anyhow::{Result, bail};
 
 use crate::catalog;
+use crate::report::table;
 
 use super::output;
 
@@ -14,34 +16,48 @@ use super::output;
     after_help = "Examples:\n  actswap catalog\n  actswap catalog swish\n  actswap catalog gelu --json"
 )]
 pub struct Args {
-    /// One kind id (all kinds when omitted).
+    /// One kind id, described in full (without it: one line per kind).
     kind: Option<String>,
-    /// Print JSON instead of text.
+    /// Print JSON instead of text (every kind in full when no kind is given).
     #[arg(long)]
     json: bool,
 }
 
 pub fn run(args: Args) -> Result<ExitCode> {
-    let kinds: Vec<&catalog::Kind> = match &args.kind {
-        None => catalog::all().to_vec(),
+    let kind = match &args.kind {
+        None => None,
         Some(id) => match catalog::get(id) {
-            Some(k) => vec![k],
+            Some(k) => Some(k),
             None => {
                 let ids: Vec<&str> = catalog::all().iter().map(|k| k.id).collect();
                 bail!("unknown kind '{id}' (known: {})", ids.join(", "));
             }
         },
     };
-    if args.json {
-        let v: Vec<serde_json::Value> = kinds.iter().map(|k| catalog::to_json(k)).collect();
-        output::print_json(&if args.kind.is_some() {
-            v[0].clone()
-        } else {
-            v.into()
-        })?;
-    } else {
-        let text: Vec<String> = kinds.iter().map(|k| catalog::describe(k)).collect();
-        output::print(&text.join("\n"))?;
+    match (kind, args.json) {
+        (Some(k), true) => output::print_json(&catalog::to_json(k))?,
+        (Some(k), false) => output::print(&catalog::describe(k))?,
+        (None, true) => {
+            let all: Vec<serde_json::Value> =
+                catalog::all().iter().map(|k| catalog::to_json(k)).collect();
+            output::print_json(&all.into())?
+        }
+        (None, false) => output::print(&summary())?,
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// One line per kind, then how to see one in full.
+fn summary() -> String {
+    let rows: Vec<Vec<String>> = catalog::all()
+        .iter()
+        .map(|k| catalog::summary_row(k))
+        .collect();
+    format!(
+        "{}\n{} kinds. fused, primitive: the first op and the least opset of each form actswap\n\
+writes (float32). `actswap catalog KIND` describes one kind in full: formula, parameters,\n\
+source, forms and approximations.\n",
+        table::render(&catalog::SUMMARY_COLUMNS, &rows),
+        rows.len()
+    )
 }

@@ -19,7 +19,7 @@ use crate::run;
 use crate::text::escape_path;
 
 use super::inputs::InputArgs;
-use super::{exit_code, output};
+use super::{exit_code, output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -31,7 +31,7 @@ catalogue's worst-case error over it, and per graph output max abs, mean abs, RM
 cosine, the share beyond tolerance and top-1 agreement; then end-to-end and per-site latency. \
 Drift on sample inputs certifies nothing for safety-relevant uses: validate as your domain \
 requires.",
-    after_help = "Examples:\n  actswap drift model.onnx model.fast.onnx\n  actswap drift model.onnx model.fast.onnx --input image=batch.npy --max-abs 1e-3 --min-cosine 0.9999\n  actswap drift model.onnx model.fast.onnx --samples 8 --dist uniform --range=-4,4 --json\n\nWithout budget flags the default budget applies (output cosine at least 0.999).\nExit codes: 0 pass, 1 over budget or nothing compared, 2 error."
+    after_help = "Examples:\n  actswap drift model.onnx model.fast.onnx --dim batch=1\n  actswap drift model.onnx model.fast.onnx --input image=batch.npy --max-abs 1e-3 --min-cosine 0.9999\n  actswap drift model.onnx model.fast.onnx --dim batch=1 --samples 8 --dist uniform --range=-4,4 --json\n\nWithout budget flags the default budget applies (output cosine at least 0.999).\nExit codes: 0 pass, 1 over budget or nothing compared, 2 error."
 )]
 pub struct Args {
     /// The original ONNX model.
@@ -50,6 +50,8 @@ pub struct Args {
 pub fn run(args: Args) -> Result<ExitCode> {
     let opts = args.measure.options()?;
     let inputs = args.inputs.source(false)?;
+    paths::model_file(&args.original, "drift")?;
+    paths::model_file(&args.rewritten, "drift")?;
     let original = Model::load(&args.original)?;
     let rewritten = Model::load(&args.rewritten)?;
     // Validation before tract reads anything (external data that is a FIFO would block it).

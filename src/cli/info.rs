@@ -7,7 +7,7 @@ use anyhow::{Context, Result};
 
 use crate::onnx::{Model, ModelIndex, summary::Summary};
 
-use super::output;
+use super::{output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -23,6 +23,7 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> Result<ExitCode> {
+    paths::model_file(&args.model, "info")?;
     let model = Model::load(&args.model)?;
     let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
     let summary = Summary::of(&index)?;

@@ -12,6 +12,7 @@ mod drift;
 mod info;
 mod inputs;
 mod output;
+mod paths;
 mod plan_args;
 mod scan;
 mod swap;

@@ -10,7 +10,7 @@ use crate::onnx::{Model, ModelIndex};
 use crate::report::scan_table;
 use crate::scan;
 
-use super::output;
+use super::{output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -35,6 +35,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
             bail!("unknown kind '{k}' (known: {})", ids.join(", "));
         }
     }
+    paths::model_file(&args.model, "scan")?;
     let model = Model::load(&args.model)?;
     let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
     let mut report = scan::scan(&index);

@@ -13,7 +13,7 @@ use crate::rewrite;
 
 use super::access::{self, Extras};
 use super::plan_args::PlanArgs;
-use super::{exit_code, output};
+use super::{exit_code, output, paths};
 
 #[derive(Debug, clap::Args)]
 #[command(
@@ -50,6 +50,8 @@ pub struct Args {
 
 pub fn run(args: Args) -> Result<ExitCode> {
     let conversion = args.plan.conversion()?;
+    paths::model_file(&args.model, "swap")?;
+    paths::output_files(&[("-o", args.output.as_deref().filter(|_| !args.dry_run))])?;
     let model = Model::load(&args.model)?;
     let out = args.output.as_deref().filter(|_| !args.dry_run);
     let reads = Extras {

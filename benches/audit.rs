@@ -2,12 +2,20 @@
 //! (process start, scan, plan, rewrite in memory, capture every site, isolate and run the sites,
 //! bounds, metrics; latency off) divided by a bare tract harness that loads, optimizes and runs
 //! the original and the rewritten model once on the same input, in this process. Both are timed
-//! alternately in the same run and the medians compared; the aim is a ratio of at most 1.25.
+//! alternately in the same run and the medians compared.
 //!
-//! Two cases: a sample model under the piecewise-linear target (the planner weighs every
-//! substitution it offers), and a torch export with one `--to` request.
+//! Three parts:
+//! - two real models: a sample model under the piecewise-linear target (the planner weighs
+//!   every substitution it offers) and a torch export with one `--to` request; aim: 1.25 at most;
+//! - a doubling series of the site count: chains of N blocks (MatMul 64x64, SiLU), N = 100 to
+//!   6400, `--to silu=hard_swish`; the time ratio per doubling (2.00 is linear) aims at 2.1 at
+//!   most;
+//! - a 100k-node element-wise graph with 30k sites (a SiLU, a Relu and a Tanh per 10 nodes),
+//!   `--to silu=hard_swish`; aim: within 3x the bare harness.
 //!
-//! `cargo bench --bench audit` (optionally `-- RUNS`, default 15).
+//! `cargo bench --bench audit -- [RUNS] [--sites MAX] [--nodes N]`: RUNS for the real models
+//! (default 15; the synthetic graphs take 3), the series' largest site count (default 6400)
+//! and the large graph's node count (default 100000).
 
 mod support;
 
@@ -16,14 +24,14 @@ use std::process::Command;
 use std::time::Instant;
 
 use actswap::onnx::Model;
-use actswap::run::inputs::{Binding, InputLoader};
-use actswap::run::prepare;
+use actswap::run::inputs::{Binding, InputLoader, RandomInputs};
+use actswap::run::{Sample, prepare};
 use ndarray::Array4;
 use rand::{Rng, SeedableRng};
-use support::{bare, median};
+use support::{bare, graphs, median};
 
 fn actswap(args: &[&str]) {
-    let out = Command::new(env!("CARGO_BIN_EXE_actswap"))
+    let out = Command::new(support::actswap_bin())
         .args(args)
         .output()
         .expect("actswap runs");
@@ -34,19 +42,19 @@ fn actswap(args: &[&str]) {
     );
 }
 
-/// One model, a conversion, and the input file both sides are fed.
+/// One model, a conversion, and the input file both sides are fed (random data when none).
 struct Case {
-    label: &'static str,
+    label: String,
     model: PathBuf,
     conversion: Vec<&'static str>,
     /// `--input` value for the command and the binding for the bare harness.
-    input: (Option<&'static str>, PathBuf),
+    input: Option<(Option<&'static str>, PathBuf)>,
 }
 
+/// The medians of the audit command and of the bare harness, in seconds.
 fn measure(case: &Case, tmp: &Path, runs: usize) -> (f64, f64) {
     let m = case.model.to_str().unwrap();
-    let stem = case.label.split(',').next().unwrap_or("case");
-    let rewritten_path = tmp.join(format!("{stem}.rewritten.onnx"));
+    let rewritten_path = tmp.join("rewritten.onnx");
     let swap = [
         &["swap", m][..],
         &case.conversion,
@@ -56,24 +64,32 @@ fn measure(case: &Case, tmp: &Path, runs: usize) -> (f64, f64) {
     let original = Model::load(&case.model).unwrap();
     let rewritten = Model::load(&rewritten_path).unwrap();
     let tract = prepare(&original.encode(), Some(original.dir())).unwrap();
-    let binding = Binding {
-        input: case.input.0.map(String::from),
-        path: case.input.1.clone(),
+    let loader = InputLoader::new(tract.inputs());
+    let (sample, input_arg): (Sample, Option<String>) = match &case.input {
+        Some((name, path)) => {
+            let binding = Binding {
+                input: name.map(String::from),
+                path: path.clone(),
+            };
+            let arg = match name {
+                Some(name) => format!("{name}={}", path.display()),
+                None => path.display().to_string(),
+            };
+            (
+                loader.from_bindings(&[binding]).unwrap().remove(0),
+                Some(arg),
+            )
+        }
+        None => (
+            loader.random(&RandomInputs::default()).unwrap().remove(0),
+            None,
+        ),
     };
-    let sample = InputLoader::new(tract.inputs())
-        .from_bindings(&[binding])
-        .unwrap()
-        .remove(0);
-    let input_arg = match case.input.0 {
-        Some(name) => format!("{name}={}", case.input.1.display()),
-        None => case.input.1.display().to_string(),
-    };
-    let audit = [
-        &["audit", m][..],
-        &case.conversion,
-        &["--input", &input_arg, "--no-latency", "--json"],
-    ]
-    .concat();
+    let mut audit: Vec<&str> = [&["audit", m][..], &case.conversion].concat();
+    if let Some(arg) = &input_arg {
+        audit.extend(["--input", arg]);
+    }
+    audit.extend(["--no-latency", "--json"]);
     // Warm both paths once.
     actswap(&audit);
     bare(&original, &rewritten, &sample);
@@ -89,11 +105,33 @@ fn measure(case: &Case, tmp: &Path, runs: usize) -> (f64, f64) {
     (median(ta), median(tb))
 }
 
+fn header() {
+    println!(
+        "{:<48}  {:>10}  {:>15}  {:>5}",
+        "case", "audit (ms)", "bare tract (ms)", "ratio"
+    );
+}
+
+fn print(label: &str, (a, b): (f64, f64)) {
+    println!(
+        "{label:<48}  {:>10.1}  {:>15.1}  {:>5.2}",
+        a * 1e3,
+        b * 1e3,
+        a / b
+    );
+}
+
+/// The value after `flag` on the command line.
+fn option(args: &[String], flag: &str) -> Option<usize> {
+    let i = args.iter().position(|a| a == flag)?;
+    args.get(i + 1)?.parse().ok()
+}
+
 fn main() {
-    let runs: usize = std::env::args()
-        .skip(1)
-        .find_map(|a| a.parse().ok())
-        .unwrap_or(15);
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    let runs: usize = args.first().and_then(|a| a.parse().ok()).unwrap_or(15);
+    let max_sites = option(&args, "--sites").unwrap_or(6400);
+    let nodes = option(&args, "--nodes").unwrap_or(100_000);
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     let tmp = tempfile::tempdir().unwrap();
     let image = tmp.path().join("image.npy");
@@ -103,27 +141,66 @@ fn main() {
     let leaf = root.join("tests/fixtures/torch/leaf-spot-ts-op13");
     let cases = [
         Case {
-            label: "orchard-grader, --target piecewise-linear",
+            label: "orchard-grader, --target piecewise-linear".into(),
             model: root.join("sample-models/orchard-grader.onnx"),
             conversion: vec!["--target", "piecewise-linear"],
-            input: (Some("image"), image),
+            input: Some((Some("image"), image)),
         },
         Case {
-            label: "leaf-spot-ts-op13, --to silu=hard_swish",
+            label: "leaf-spot-ts-op13, --to silu=hard_swish".into(),
             model: leaf.join("model.onnx"),
             conversion: vec!["--to", "silu=hard_swish"],
-            input: (None, leaf.join("inputs.npz")),
+            input: Some((None, leaf.join("inputs.npz"))),
         },
     ];
-    println!("{:<44}  audit (ms)  bare tract (ms)  ratio", "case");
+    println!("real models, median of {runs} runs");
+    header();
     for case in &cases {
-        let (a, b) = measure(case, tmp.path(), runs);
+        print(&case.label, measure(case, tmp.path(), runs));
+    }
+
+    const SYNTHETIC_RUNS: usize = 3;
+    println!(
+        "\nsite-count series: N x (MatMul 64x64, SiLU), --to silu=hard_swish, median of {SYNTHETIC_RUNS} runs"
+    );
+    header();
+    let mut series: Vec<(usize, f64)> = Vec::new();
+    let mut n = 100;
+    while n <= max_sites {
+        let model = tmp.path().join(format!("series-{n}.onnx"));
+        graphs::matmul_silu(&model, n, 64);
+        let case = Case {
+            label: format!("{n} sites"),
+            model,
+            conversion: vec!["--to", "silu=hard_swish"],
+            input: None,
+        };
+        let times = measure(&case, tmp.path(), SYNTHETIC_RUNS);
+        print(&case.label, times);
+        series.push((n, times.0));
+        n *= 2;
+    }
+    for w in series.windows(2) {
         println!(
-            "{:<44}  {:>10.1}  {:>15.1}  {:>5.2}",
-            case.label,
-            a * 1e3,
-            b * 1e3,
-            a / b
+            "{} -> {} sites: audit time ratio {:.2} (2.00 = linear)",
+            w[0].0,
+            w[1].0,
+            w[1].1 / w[0].1
         );
     }
+
+    let model = tmp.path().join("three-sites.onnx");
+    graphs::three_sites(&model, nodes);
+    let case = Case {
+        label: format!(
+            "{nodes} nodes, {} sites (SiLU, Relu, Tanh)",
+            nodes / graphs::THREE_SITES_BLOCK * 3
+        ),
+        model,
+        conversion: vec!["--to", "silu=hard_swish"],
+        input: None,
+    };
+    println!("\nlarge element-wise graph, median of {SYNTHETIC_RUNS} runs");
+    header();
+    print(&case.label, measure(&case, tmp.path(), SYNTHETIC_RUNS));
 }

@@ -164,3 +164,50 @@ fn an_op_tract_lacks_names_the_version_and_what_still_works() {
         "{error}"
     );
 }
+
+/// `--max-memory` sets that ceiling from the command line for `drift`, `audit` and `batch`: the
+/// sample model (a 1 x 3 x 32 x 32 float input, 12 KiB) is refused under 1 KiB with exit 2 and
+/// one line, and audited under the default (README, Exit codes: this tool's contract).
+#[test]
+fn max_memory_sets_the_ceiling_from_the_command_line() {
+    let sample = env!("CARGO_MANIFEST_DIR").to_string() + "/sample-models/orchard-grader.onnx";
+    let tmp = tempfile::tempdir().unwrap();
+    let out_dir = tmp.path().join("converted");
+    let kib = (1.0f64 / (1024.0 * 1024.0)).to_string();
+    let common = ["--to", "*=primitive", "--dim", "batch=1", "--no-latency"];
+    let cases: [Vec<&str>; 3] = [
+        [&["audit", sample.as_str()][..], &common].concat(),
+        [
+            &["drift", sample.as_str(), sample.as_str()][..],
+            &common[2..],
+        ]
+        .concat(),
+        [
+            &["batch", sample.as_str(), "-o", path(&out_dir)][..],
+            &common,
+        ]
+        .concat(),
+    ];
+    for args in cases {
+        let refused = actswap(&[&args[..], &["--max-memory", &kib]].concat());
+        let err = stderr(&refused);
+        assert_eq!(refused.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains("memory ceiling"), "{args:?}: {err}");
+        if args[0] != "batch" {
+            assert_eq!(err.lines().count(), 1, "{args:?}: {err}");
+        }
+        let fits = actswap(&args);
+        assert_eq!(fits.status.code(), Some(0), "{args:?}: {}", stderr(&fits));
+    }
+    let audit = [
+        "audit",
+        sample.as_str(),
+        "--to",
+        "*=primitive",
+        "--max-memory",
+        "0",
+    ];
+    let bad = actswap(&audit);
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(stderr(&bad).contains("--max-memory must be a positive number"));
+}

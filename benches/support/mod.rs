@@ -1,9 +1,22 @@
-//! Shared by the benchmarks: the bare tract harness they measure against, and medians.
+//! Shared by the benchmarks: the bare tract harness they measure against, medians, and the
+//! synthetic graphs ([`graphs`]).
 
 #![allow(dead_code)]
 
+pub mod graphs;
+
+use std::path::PathBuf;
+
 use actswap::onnx::Model;
 use actswap::run::{Sample, prepare};
+
+/// The `actswap` binary the benchmarks run: this build's, or the one the `ACTSWAP` environment
+/// variable names (to measure another build with the same benchmark).
+pub fn actswap_bin() -> PathBuf {
+    std::env::var_os("ACTSWAP")
+        .map(PathBuf::from)
+        .unwrap_or_else(|| env!("CARGO_BIN_EXE_actswap").into())
+}
 
 /// Loads, optimizes and runs each model once on `sample`: what running two models costs with
 /// nothing else around it.

@@ -16,6 +16,8 @@ use super::kind::Kind;
 use super::numeric::same_f32;
 use super::params::Params;
 
+mod memo;
+
 /// How a rule sets the target kind's parameters.
 #[derive(Debug, Clone, Copy)]
 pub enum ParamMap {
@@ -321,7 +323,15 @@ const TIE: f64 = 1e-12;
 /// finite limit. The error at x = +-1e300 tells which: above 1e100 (or not a number) it is
 /// unbounded and the result is `INFINITY` at that side; otherwise it is the limit, and when the
 /// limit is the sup (within 1e-12) the result's `at` is that infinity.
+///
+/// A bound is computed once per process for the same kinds, parameters and ends (see [`memo`]):
+/// a model's sites mostly share them.
 pub fn max_abs_error(from: (&Kind, &[f64]), to: (&Kind, &[f64]), lo: f64, hi: f64) -> ErrorBound {
+    memo::remembered(from, to, lo, hi, || computed(from, to, lo, hi))
+}
+
+/// [`max_abs_error`] computed afresh.
+fn computed(from: (&Kind, &[f64]), to: (&Kind, &[f64]), lo: f64, hi: f64) -> ErrorBound {
     let arity_ok = from.1.len() == from.0.params.len() && to.1.len() == to.0.params.len();
     if !arity_ok || lo.is_nan() || hi.is_nan() {
         return ErrorBound {

@@ -143,6 +143,15 @@ pub struct MeasureArgs {
     /// Skip latency measurement.
     #[arg(long, help_heading = "Latency", conflicts_with_all = ["runs", "warmup"])]
     no_latency: bool,
+    /// Memory ceiling in GiB: a model whose values would take more, one of them or all
+    /// together, is refused (exit 2) before tract allocates them.
+    #[arg(
+        long,
+        value_name = "GIB",
+        default_value_t = 8.0,
+        help_heading = "Limits"
+    )]
+    max_memory: f64,
 }
 
 impl MeasureArgs {
@@ -176,6 +185,12 @@ impl MeasureArgs {
         {
             bail!("--min-top1 must lie in [0, 1] (got {t})");
         }
+        if !(args.max_memory.is_finite() && args.max_memory > 0.0) {
+            bail!(
+                "--max-memory must be a positive number of GiB (got {})",
+                args.max_memory
+            );
+        }
         if args.runs == 0 {
             bail!("--runs must be at least 1");
         }
@@ -197,6 +212,7 @@ impl MeasureArgs {
                 warmup: args.warmup,
             }),
             input_source: String::new(),
+            memory_ceiling: (args.max_memory * (1u64 << 30) as f64) as u64,
         })
     }
 }

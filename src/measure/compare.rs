@@ -41,6 +41,9 @@ pub struct CompareOptions {
     pub latency: Option<LatencyOptions>,
     /// Where the samples came from, as the report states it.
     pub input_source: String,
+    /// Bytes a run's values may take, one of them or all together, before the model is refused
+    /// ([`run::TractModel::with_memory_ceiling`]).
+    pub memory_ceiling: u64,
 }
 
 impl Default for CompareOptions {
@@ -51,6 +54,7 @@ impl Default for CompareOptions {
             budgets: Budgets::default(),
             latency: Some(LatencyOptions::default()),
             input_source: "given by the caller".into(),
+            memory_ceiling: run::DEFAULT_MEMORY_CEILING,
         }
     }
 }
@@ -80,8 +84,8 @@ pub fn compare(
     opts: &CompareOptions,
 ) -> Result<DriftReport> {
     ensure!(!samples.is_empty(), "no input samples to compare on");
-    let a = Side::load(original, "original model")?;
-    let b = Side::load(rewritten, "rewritten model")?;
+    let a = Side::load(original, "original model", opts.memory_ceiling)?;
+    let b = Side::load(rewritten, "rewritten model", opts.memory_ceiling)?;
     let pairs: Vec<Pair> = pairs
         .iter()
         .map(|p| Pair {
@@ -177,17 +181,21 @@ struct Side<'i, 'm> {
     model: &'m Model,
     index: &'i ModelIndex<'m>,
     tract: TractModel,
+    /// The memory ceiling of every run of this side, isolated sites included.
+    ceiling: u64,
 }
 
 impl<'i, 'm> Side<'i, 'm> {
-    fn load(index: &'i ModelIndex<'m>, what: &str) -> Result<Side<'i, 'm>> {
+    fn load(index: &'i ModelIndex<'m>, what: &str, ceiling: u64) -> Result<Side<'i, 'm>> {
         let model = index.model;
-        let tract =
-            run::prepare(&model.encode(), Some(model.dir())).with_context(|| what.to_string())?;
+        let tract = run::prepare(&model.encode(), Some(model.dir()))
+            .with_context(|| what.to_string())?
+            .with_memory_ceiling(ceiling);
         Ok(Side {
             model,
             index,
             tract,
+            ceiling,
         })
     }
 
@@ -444,7 +452,9 @@ fn measure_local(
         .collect();
     let run_isolated = |side: &Side, parts: &[Part], what: &str| -> Result<Vec<Values>> {
         let model = isolate::build(side.model, parts);
-        let tract = run::prepare(&model.encode(), Some(model.dir())).context(what.to_string())?;
+        let tract = run::prepare(&model.encode(), Some(model.dir()))
+            .context(what.to_string())?
+            .with_memory_ceiling(side.ceiling);
         capture::run_samples(&tract, &samples, &[], what)
     };
     let runs = run_isolated(a, &parts_a, "isolated original sites")
@@ -525,7 +535,7 @@ fn site_latency(
     let (ma, mb) = (single(a, &iso.ext_a), single(b, &iso.ext_b));
     let sa: Sample = vec![NamedTensor::new(&iso.ext_a.input, input.clone())];
     let sb: Sample = vec![NamedTensor::new(&iso.ext_b.input, input.clone())];
-    latency::site((&ma, &sa), (&mb, &sb), opts)
+    latency::site((&ma, &sa), (&mb, &sb), opts, a.ceiling)
 }
 
 /// Drift and top-1 agreement at every graph output of the original model; the error says why

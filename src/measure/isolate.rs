@@ -232,7 +232,12 @@ fn depth(index: &ModelIndex, g: usize) -> usize {
     d
 }
 
+/// Where `node` stands in `order`: at once when the graph is stored in order there (exports
+/// almost always are), else by a search.
 fn position(order: &[usize], node: usize) -> usize {
+    if order.get(node) == Some(&node) {
+        return node;
+    }
     order.iter().position(|&n| n == node).unwrap_or(usize::MAX)
 }
 

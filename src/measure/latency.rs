@@ -120,14 +120,15 @@ pub fn end_to_end(
 }
 
 /// Latency of two isolated single-site models, each fed its sample (the same data under each
-/// model's input name).
+/// model's input name), under the memory ceiling `ceiling`.
 pub fn site(
     a: (&Model, &Sample),
     b: (&Model, &Sample),
     opts: LatencyOptions,
+    ceiling: u64,
 ) -> Result<SiteLatency> {
     let compile = |(model, sample): (&Model, &Sample)| -> Result<Compiled> {
-        let tract = run::prepare(&model.encode(), Some(model.dir()))?;
+        let tract = run::prepare(&model.encode(), Some(model.dir()))?.with_memory_ceiling(ceiling);
         Ok(tract.compile(sample, &[])?)
     };
     let plan_a = compile(a).context("isolated original site")?;

@@ -13,4 +13,5 @@ pub mod report;
 pub mod rewrite;
 pub mod run;
 pub mod scan;
+pub mod schema_version;
 pub mod text;

@@ -57,6 +57,7 @@ fn audit_reports_plan_and_drift_and_writes_nothing_without_o() {
     assert_eq!(
         keys,
         [
+            "schema_version",
             "actswap",
             "model",
             "converted_for",

@@ -51,6 +51,7 @@ fn self_drift_exits_0_with_every_documented_key() {
     assert_eq!(
         keys,
         [
+            "schema_version",
             "model_a",
             "model_b",
             "samples",

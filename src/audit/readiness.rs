@@ -3,6 +3,7 @@
 
 use std::collections::BTreeMap;
 
+use schemars::JsonSchema;
 use serde::Serialize;
 
 use crate::onnx::ModelIndex;
@@ -14,7 +15,7 @@ use crate::scan::types::Types;
 const FIRST_NODES: usize = 3;
 
 /// One op type the target does not run, and where the model uses it.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, JsonSchema)]
 pub struct RefusedOp {
     /// `Op`, or `domain:Op` outside the default domain.
     pub op: String,
@@ -29,7 +30,7 @@ pub struct RefusedOp {
 }
 
 /// The ops of a converted model its target does not run, most frequent first.
-#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, JsonSchema)]
 pub struct Readiness {
     pub refused: Vec<RefusedOp>,
 }

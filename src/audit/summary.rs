@@ -6,6 +6,7 @@
 //!
 //! ```text
 //! {
+//!   "schema_version": 1,               the schema: `actswap schema batch`
 //!   "actswap": "0.1.0",                the version that wrote it
 //!   "converted_for": "target ...",     the target (name, or file and SHA-256) or the requests
 //!   "budget": {"max_abs", "max_rel", "min_cosine", "min_top1", "site_max_abs"}, null: not set
@@ -31,14 +32,16 @@
 //! ```
 //! The per-model fields are [`ModelSummary`]'s.
 
+use schemars::JsonSchema;
 use serde::Serialize;
 
 use super::readiness::Readiness;
 use crate::measure::{CAUTION, DriftReport};
 use crate::plan::{Action, Plan};
+use crate::schema_version::SchemaVersion;
 
 /// What a model's audit comes to: pass, or the first failing reason in this order.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, PartialOrd, Ord)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, JsonSchema, PartialOrd, Ord)]
 #[serde(rename_all = "snake_case")]
 pub enum Verdict {
     /// Every node runs on the target, every site is served, every figure within budget, and
@@ -71,7 +74,7 @@ impl Verdict {
 }
 
 /// A verdict and every failing reason behind it, the verdict's own first.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, JsonSchema)]
 pub struct Judgement {
     pub verdict: Verdict,
     pub reasons: Vec<String>,
@@ -179,7 +182,7 @@ impl Judgement {
 
 /// Per-model figures. Drift figures are `None` when nothing was measured (no site, or every
 /// figure missing); a figure that is not finite serializes as `null` too.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, JsonSchema)]
 pub struct ModelSummary {
     /// The original model's file, as the drift report names it.
     pub model: String,
@@ -303,7 +306,7 @@ fn worst<T>(
 }
 
 /// One model's line in the summary.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, JsonSchema)]
 pub struct ModelRow {
     /// Where the converted model was written; `None` when nothing was.
     pub output: Option<String>,
@@ -312,7 +315,7 @@ pub struct ModelRow {
 }
 
 /// Counts and worst figures over every model.
-#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, JsonSchema)]
 pub struct Totals {
     pub models: usize,
     pub passed: usize,
@@ -333,7 +336,7 @@ pub struct Totals {
 }
 
 /// What every model of a batch was judged against.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, JsonSchema)]
 pub struct BatchContext {
     /// The target or the requests, in words.
     pub converted_for: String,
@@ -344,8 +347,9 @@ pub struct BatchContext {
 }
 
 /// The summary of many models.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, JsonSchema)]
 pub struct BatchReport {
+    pub schema_version: SchemaVersion,
     pub actswap: &'static str,
     #[serde(flatten)]
     pub context: BatchContext,
@@ -386,17 +390,13 @@ impl BatchReport {
         t.worst_output_max_abs = figure(|s| s.worst_output_max_abs, |v, w| v > w);
         t.lowest_output_cosine = figure(|s| s.lowest_output_cosine, |v, w| v < w);
         BatchReport {
+            schema_version: SchemaVersion,
             actswap: env!("CARGO_PKG_VERSION"),
             context,
             models,
             totals: t,
             caution: CAUTION,
         }
-    }
-
-    /// The report as JSON (see the module doc).
-    pub fn to_json(&self) -> serde_json::Value {
-        serde_json::to_value(self).expect("a batch report serializes")
     }
 
     /// The worst verdict of the batch, for its exit code: the first failing one in the order

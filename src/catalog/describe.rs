@@ -1,8 +1,7 @@
-//! Text and JSON descriptions of a kind, for the catalogue command.
+//! Text description of a kind, for the catalogue command, and the forms and approximations
+//! both the text and the JSON ([`super::json`]) list.
 
 use std::fmt::Write;
-
-use serde_json::{Value, json};
 
 use super::emit::{Form, OpNeed, Unavailable, min_opset};
 use super::kind::Kind;
@@ -13,15 +12,15 @@ const WIDTH: usize = 96;
 
 /// One form `kind` emits, with every parameter a scalar or, with `per_channel`, each per-channel
 /// parameter a tensor.
-struct EmittedForm {
-    form: Form,
-    per_channel: bool,
+pub(super) struct EmittedForm {
+    pub form: Form,
+    pub per_channel: bool,
     /// The ops at the lowest opset that has the form, or why there is none.
-    ops: Result<Vec<OpNeed>, Unavailable>,
+    pub ops: Result<Vec<OpNeed>, Unavailable>,
 }
 
 /// Every form of `kind`; the per-channel variants only for a kind with a per-channel parameter.
-fn emitted_forms(kind: &Kind) -> Vec<EmittedForm> {
+pub(super) fn emitted_forms(kind: &Kind) -> Vec<EmittedForm> {
     let per_channel = kind.params.iter().any(|p| p.per_channel);
     let variants: &[bool] = if per_channel {
         &[false, true]
@@ -41,15 +40,15 @@ fn emitted_forms(kind: &Kind) -> Vec<EmittedForm> {
 }
 
 /// One approximation of `kind` at its default parameters.
-struct Approximation {
-    rule: &'static str,
-    to: &'static str,
-    to_params: Vec<f64>,
-    bound: ErrorBound,
+pub(super) struct Approximation {
+    pub rule: &'static str,
+    pub to: &'static str,
+    pub to_params: Vec<f64>,
+    pub bound: ErrorBound,
 }
 
 /// The rules that apply to `kind` and accept its default parameters, with their bounds.
-fn approximations(kind: &Kind) -> Vec<Approximation> {
+pub(super) fn approximations(kind: &Kind) -> Vec<Approximation> {
     let defaults = kind.defaults();
     rules()
         .for_kind(kind)
@@ -215,92 +214,6 @@ pub fn describe(kind: &Kind) -> String {
     out
 }
 
-/// Machine-readable description. Keys: id, title, formula, params [{name, default, per_channel,
-/// doc}], source, fused [{domain, op_type, since, note}] (domain "" is ai.onnx), forms,
-/// emitted [{form, per_channel, ops [{op_type, since}], min_opset, unavailable}] (for float32,
-/// at the lowest opset that has the form; `unavailable` is null or the reason, and then `ops`
-/// is empty and `min_opset` null), piecewise_linear, example, numeric_notes, approximations [{rule, to, to_params,
-/// max_abs_error, at}] over the real line at the default parameters. `max_abs_error` is the
-/// string "inf" when the error is unbounded; `at` is "+inf" or "-inf" when the worst case is
-/// only approached (or, if unbounded, reached) at that end.
-pub fn to_json(kind: &Kind) -> Value {
-    let params: Vec<Value> = kind
-        .params
-        .iter()
-        .map(|p| {
-            json!({
-                "name": p.name,
-                "default": p.default,
-                "per_channel": p.per_channel,
-                "doc": p.doc,
-            })
-        })
-        .collect();
-    let fused: Vec<Value> = kind
-        .fused
-        .iter()
-        .map(
-            |f| json!({"domain": f.domain, "op_type": f.op.op_type, "since": f.introduced, "note": f.note}),
-        )
-        .collect();
-    let emitted: Vec<Value> = emitted_forms(kind)
-        .into_iter()
-        .map(|e| {
-            let (ops, unavailable) = match e.ops {
-                Ok(ops) => (ops, Value::Null),
-                Err(why) => (Vec::new(), json!(why.to_string())),
-            };
-            let list: Vec<Value> = ops
-                .iter()
-                .map(|o| json!({"op_type": o.op_type, "since": o.since}))
-                .collect();
-            json!({
-                "form": e.form.name(),
-                "per_channel": e.per_channel,
-                "ops": list,
-                "min_opset": min_opset(&ops),
-                "unavailable": unavailable,
-            })
-        })
-        .collect();
-    let approx: Vec<Value> = approximations(kind)
-        .into_iter()
-        .map(|a| {
-            let value = if a.bound.value.is_infinite() {
-                json!("inf")
-            } else {
-                json!(a.bound.value)
-            };
-            let at = if a.bound.at.is_infinite() {
-                json!(signed_inf(a.bound.at))
-            } else {
-                json!(a.bound.at)
-            };
-            json!({
-                "rule": a.rule,
-                "to": a.to,
-                "to_params": a.to_params,
-                "max_abs_error": value,
-                "at": at,
-            })
-        })
-        .collect();
-    json!({
-        "id": kind.id,
-        "title": kind.title,
-        "formula": kind.formula,
-        "params": params,
-        "source": kind.source,
-        "fused": fused,
-        "forms": kind.forms,
-        "emitted": emitted,
-        "piecewise_linear": kind.piecewise_linear,
-        "example": kind.example,
-        "numeric_notes": kind.numeric_notes,
-        "approximations": approx,
-    })
-}
-
 fn signed_inf(v: f64) -> &'static str {
     if v > 0.0 { "+inf" } else { "-inf" }
 }
@@ -342,7 +255,7 @@ fn wrap(text: &str, first: &str, rest: &str) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::catalog::{all, get};
+    use crate::catalog::all;
 
     #[test]
     fn text_has_every_section() {
@@ -362,64 +275,6 @@ mod tests {
             }
             assert!(text.lines().all(|l| l.len() <= WIDTH), "{}", k.id);
         }
-    }
-
-    #[test]
-    fn json_keys_are_stable() {
-        let v = to_json(get("swish").unwrap());
-        let keys: Vec<&str> = v.as_object().unwrap().keys().map(String::as_str).collect();
-        assert_eq!(
-            keys,
-            [
-                "id",
-                "title",
-                "formula",
-                "params",
-                "source",
-                "fused",
-                "forms",
-                "emitted",
-                "piecewise_linear",
-                "example",
-                "numeric_notes",
-                "approximations"
-            ]
-        );
-        assert_eq!(v["params"][0]["name"], "beta");
-        assert_eq!(v["params"][0]["per_channel"], true);
-        assert_eq!(v["fused"][0]["op_type"], "Swish");
-        assert_eq!(v["fused"][0]["since"], 24);
-        let rules: Vec<&str> = v["approximations"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|a| a["rule"].as_str().unwrap())
-            .collect();
-        assert_eq!(rules, ["swish-to-hard-swish", "any-to-relu"]);
-        let emitted = v["emitted"].as_array().unwrap();
-        assert_eq!(emitted.len(), 4, "two forms, scalar and per-channel beta");
-        assert_eq!(emitted[0]["form"], "fused");
-        assert_eq!(emitted[0]["ops"][0]["op_type"], "Swish");
-        assert_eq!(emitted[0]["min_opset"], 24);
-        assert_eq!(emitted[1]["per_channel"], true);
-        assert!(emitted[1]["unavailable"].is_string());
-        assert_eq!(emitted[1]["min_opset"], Value::Null);
-        assert_eq!(emitted[3]["form"], "primitive");
-        assert_eq!(emitted[3]["min_opset"], 7);
-    }
-
-    #[test]
-    fn unbounded_errors_are_spelled_out() {
-        let v = to_json(get("sigmoid").unwrap());
-        let relu = v["approximations"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|a| a["rule"] == "any-to-relu")
-            .unwrap();
-        assert_eq!(relu["max_abs_error"], "inf");
-        assert_eq!(relu["at"], "+inf");
-        assert!(describe(get("sigmoid").unwrap()).contains("unbounded (grows as x -> +inf)"));
     }
 
     #[test]

@@ -83,7 +83,7 @@ pub struct EmitCtx<'a> {
 }
 
 /// An op a form emits and the opset it needs for the site's element type.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, schemars::JsonSchema)]
 pub struct OpNeed {
     pub op_type: &'static str,
     pub since: i64,

@@ -6,7 +6,7 @@
 //! its sources and notes. Everything else is derived from the registry: the scanner identifies
 //! decomposed chains with [`identify`] and fused nodes with [`read_fused`], the planner bounds
 //! substitutions with [`substitute`], the forms are written by [`Kind::emit`] with the builder of
-//! [`emit`], and the catalogue command prints [`describe`] / [`to_json`].
+//! [`emit`], and the catalogue command prints [`describe`] / [`json`].
 //!
 //! Adding a kind: write `src/catalog/<id>.rs` with `pub const KIND: Kind` (its fused ops, if
 //! ONNX has any, and its primitive form in the same file), then add one line to the
@@ -15,6 +15,7 @@
 mod describe;
 pub mod emit;
 mod identify;
+pub mod json;
 pub mod kind;
 mod numeric;
 pub mod params;
@@ -23,9 +24,10 @@ pub mod substitute;
 use std::collections::HashMap;
 use std::sync::OnceLock;
 
-pub use describe::{SUMMARY_COLUMNS, describe, summary_row, to_json};
+pub use describe::{SUMMARY_COLUMNS, describe, summary_row};
 pub use emit::Form;
 pub use identify::{MATCH_RTOL, fits, identify, identify_channels, matches, probe_points};
+pub use json::{KindJson, json};
 pub use kind::{ConstInput, FusedNode, FusedOp, Kind, Reading, normal_domain};
 pub use params::{NamedParams, Param, ParamValue, Params};
 

@@ -2,6 +2,9 @@
 //! one per channel. Every stage that needs a channel's values asks [`Params`]; nothing else
 //! splits or merges channels.
 
+use std::borrow::Cow;
+
+use schemars::{JsonSchema, Schema, SchemaGenerator, json_schema};
 use serde::ser::SerializeMap;
 use serde::{Serialize, Serializer};
 
@@ -17,7 +20,7 @@ pub struct Param {
 }
 
 /// One parameter value: one number, or one per channel.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, JsonSchema)]
 #[serde(untagged)]
 pub enum ParamValue {
     Scalar(f64),
@@ -195,6 +198,21 @@ impl Serialize for NamedParams<'_> {
             map.serialize_entry(name, value)?;
         }
         map.end()
+    }
+}
+
+impl JsonSchema for NamedParams<'_> {
+    fn schema_name() -> Cow<'static, str> {
+        "NamedParams".into()
+    }
+
+    fn json_schema(g: &mut SchemaGenerator) -> Schema {
+        let value = g.subschema_for::<ParamValue>();
+        json_schema!({
+            "description": "Parameter values by name, in name order ({} when only known at run time).",
+            "type": "object",
+            "additionalProperties": value,
+        })
     }
 }
 

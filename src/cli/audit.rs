@@ -12,6 +12,7 @@ use crate::onnx::model::write_atomic;
 use crate::onnx::{Model, SaveOptions};
 use crate::report::footer::{self, Judged};
 use crate::report::html::{self, ModelSection};
+use crate::report::json::AuditJson;
 use crate::report::{drift_table, plan_table};
 
 use super::access::{self, Extras};
@@ -94,26 +95,12 @@ pub fn run(args: Args) -> Result<ExitCode> {
         write_atomic(path, html::render(&title, &[section]).as_bytes())?;
     }
     if args.json {
-        let mut v = serde_json::json!({
-            "actswap": env!("CARGO_PKG_VERSION"),
-            "model": args.model.display().to_string(),
-            "converted_for": audit.conversion,
-            "budget": audit.drift.budgets,
-            "budget_source": audit.budget_source,
-            "inputs": audit.drift.input_source,
-            "plan": audit.plan.to_json(),
-            "readiness": audit.readiness,
-            "drift": audit.drift.to_json(),
-            "verdict": judgement.verdict,
-            "reasons": judgement.reasons,
-        });
-        if let Some(out) = written {
-            v["written"] = out.display().to_string().into();
-        }
-        if let Some(path) = &args.report {
-            v["report"] = path.display().to_string().into();
-        }
-        output::print_json(&v)?;
+        let doc = AuditJson {
+            written: written.map(|out| out.display().to_string()),
+            report: args.report.as_ref().map(|p| p.display().to_string()),
+            ..AuditJson::new(args.model.display().to_string(), &audit, &judgement)
+        };
+        output::print_json(&doc)?;
     } else {
         output::print(&plan_table::render(&audit.plan))?;
         output::print(&format!("\n{}", drift_table::render(&audit.drift)))?;

@@ -149,7 +149,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
         write_atomic(path, html::render("actswap batch", &sections).as_bytes())?;
     }
     if args.json {
-        output::print_json(&report.to_json())?;
+        output::print_json(&report)?;
     } else {
         output::print(&batch_table::text(&report))?;
     }

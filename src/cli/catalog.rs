@@ -6,6 +6,7 @@ use std::process::ExitCode;
 use anyhow::{Result, bail};
 
 use crate::catalog;
+use crate::report::json::CatalogJson;
 use crate::report::table;
 
 use super::output;
@@ -18,7 +19,7 @@ use super::output;
 pub struct Args {
     /// One kind id, described in full (without it: one line per kind).
     kind: Option<String>,
-    /// Print JSON instead of text (every kind in full when no kind is given).
+    /// Print JSON instead of text (every kind in full under "kinds" when no kind is given).
     #[arg(long)]
     json: bool,
 }
@@ -35,13 +36,8 @@ pub fn run(args: Args) -> Result<ExitCode> {
         },
     };
     match (kind, args.json) {
-        (Some(k), true) => output::print_json(&catalog::to_json(k))?,
+        (kind, true) => output::print_json(&CatalogJson::of(kind))?,
         (Some(k), false) => output::print(&catalog::describe(k))?,
-        (None, true) => {
-            let all: Vec<serde_json::Value> =
-                catalog::all().iter().map(|k| catalog::to_json(k)).collect();
-            output::print_json(&all.into())?
-        }
         (None, false) => output::print(&summary())?,
     }
     Ok(ExitCode::SUCCESS)

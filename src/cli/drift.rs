@@ -2,8 +2,8 @@
 //! with both models run by tract on the same samples.
 //!
 //! Exit codes: 0 pass, 1 over budget or nothing compared, 2 error. Without budget flags the
-//! default budget applies ([`crate::measure::DEFAULT_BUDGET`]). The JSON schema (`--json`) is documented
-//! in [`crate::measure::report`].
+//! default budget applies ([`crate::measure::DEFAULT_BUDGET`]). The JSON schema (`--json`) is
+//! printed by `actswap schema drift`.
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -15,7 +15,9 @@ use crate::measure::{self, Budgets, CompareOptions, DEFAULT_BUDGET, LatencyOptio
 use crate::onnx::{Model, ModelIndex};
 use crate::report::drift_table;
 use crate::report::footer::{self, Judged};
+use crate::report::json::DriftJson;
 use crate::run;
+use crate::schema_version::SchemaVersion;
 use crate::text::escape_path;
 
 use super::inputs::InputArgs;
@@ -42,7 +44,7 @@ pub struct Args {
     inputs: InputArgs,
     #[command(flatten)]
     measure: MeasureArgs,
-    /// Print JSON instead of text (schema: see the documentation of actswap::measure::result).
+    /// Print JSON instead of text (its schema: `actswap schema drift`).
     #[arg(long, help_heading = "Output")]
     json: bool,
 }
@@ -74,11 +76,13 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let report = measure::compare_models(&original, &rewritten, &loaded.samples, &opts)?;
     let judgement = Judgement::of(None, None, Some(&report));
     if args.json {
-        let mut v = report.to_json();
-        v["budget_source"] = source.into();
-        v["verdict"] = serde_json::to_value(judgement.verdict)?;
-        v["reasons"] = serde_json::to_value(&judgement.reasons)?;
-        output::print_json(&v)?;
+        output::print_json(&DriftJson {
+            schema_version: SchemaVersion,
+            report: &report,
+            budget_source: source,
+            verdict: judgement.verdict,
+            reasons: &judgement.reasons,
+        })?;
     } else {
         output::print(&drift_table::render(&report))?;
         let context = Judged {

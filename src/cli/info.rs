@@ -28,7 +28,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
     let index = ModelIndex::build(&model).with_context(|| format!("'{}'", args.model.display()))?;
     let summary = Summary::of(&index)?;
     if args.json {
-        output::print_json(&serde_json::to_value(&summary)?)?;
+        output::print_json(&summary)?;
     } else {
         output::print(&summary.render())?;
     }

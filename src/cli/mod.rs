@@ -15,6 +15,7 @@ mod output;
 mod paths;
 mod plan_args;
 mod scan;
+mod schema;
 mod swap;
 mod targets;
 
@@ -68,6 +69,7 @@ enum Command {
     Targets(targets::Args),
     Catalog(catalog::Args),
     Info(info::Args),
+    Schema(schema::Args),
 }
 
 /// Runs the command line and maps the outcome to an exit code; errors print as one line.
@@ -118,6 +120,7 @@ fn run(cli: Cli) -> Result<ExitCode> {
         Command::Audit(args) => audit::run(*args),
         Command::Batch(args) => batch::run(*args),
         Command::Drift(args) => drift::run(*args),
+        Command::Schema(args) => schema::run(args),
     }
 }
 

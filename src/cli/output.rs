@@ -12,8 +12,8 @@ pub fn print(text: &str) -> Result<()> {
     Ok(())
 }
 
-/// Prints a JSON value, pretty, with a final newline.
-pub fn print_json(value: &serde_json::Value) -> Result<()> {
+/// Prints a JSON document, pretty, with a final newline.
+pub fn print_json<T: serde::Serialize>(value: &T) -> Result<()> {
     print(&(serde_json::to_string_pretty(value)? + "\n"))
 }
 

@@ -48,7 +48,7 @@ pub fn run(args: Args) -> Result<ExitCode> {
             .retain(|k, _| args.kinds.iter().any(|a| a == k));
     }
     if args.json {
-        output::print_json(&serde_json::to_value(&report)?)?;
+        output::print_json(&report)?;
     } else {
         output::print(&scan_table::render(&report))?;
     }

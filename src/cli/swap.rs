@@ -8,8 +8,10 @@ use anyhow::{Context, Result};
 use crate::audit::{Judgement, Verdict, readiness};
 use crate::onnx::{Model, ModelIndex, SaveOptions};
 use crate::report::footer::{self, Judged};
+use crate::report::json::{AppliedJson, SwapJson};
 use crate::report::plan_table;
 use crate::rewrite;
+use crate::schema_version::SchemaVersion;
 
 use super::access::{self, Extras};
 use super::plan_args::PlanArgs;
@@ -72,7 +74,6 @@ pub fn run(args: Args) -> Result<ExitCode> {
     };
     let judgement = Judgement::of(Some(&plan), readiness.as_ref(), None);
     let write = !args.dry_run && (judgement.verdict == Verdict::Pass || args.write_failing);
-    let mut json = plan.to_json();
     if write {
         let out = args
             .output
@@ -83,18 +84,22 @@ pub fn run(args: Args) -> Result<ExitCode> {
             ..SaveOptions::default()
         };
         rewritten.save(out, &opts)?;
-        json["written"] = out.display().to_string().into();
-        json["applied"] = applied
-            .iter()
-            .map(|a| serde_json::json!({"site": a.site, "output": a.output, "nodes": a.nodes, "constants": a.constants}))
-            .collect();
     }
     if args.json {
-        json["converted_for"] = conversion.describe().into();
-        json["readiness"] = serde_json::to_value(&readiness)?;
-        json["verdict"] = serde_json::to_value(judgement.verdict)?;
-        json["reasons"] = serde_json::to_value(&judgement.reasons)?;
-        output::print_json(&json)?;
+        output::print_json(&SwapJson {
+            schema_version: SchemaVersion,
+            plan: plan.json(),
+            written: args
+                .output
+                .as_ref()
+                .filter(|_| write)
+                .map(|o| o.display().to_string()),
+            applied: write.then(|| applied.iter().map(AppliedJson::from).collect()),
+            converted_for: conversion.describe(),
+            readiness: readiness.as_ref(),
+            verdict: judgement.verdict,
+            reasons: &judgement.reasons,
+        })?;
     } else {
         output::print(&plan_table::render(&plan))?;
         match &args.output {

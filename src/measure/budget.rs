@@ -5,6 +5,7 @@
 //! other model has something else) always exceeds the budget, set or not, and so does an output
 //! the two models cannot be compared on (missing, or of another shape).
 
+use schemars::JsonSchema;
 use serde::Serialize;
 
 use super::metrics::{Drift, Top1};
@@ -23,7 +24,7 @@ pub const DEFAULT_BUDGET: Budgets = Budgets {
 };
 
 /// The budgets of a comparison; `None` sets no limit.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, serde::Deserialize)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, JsonSchema, serde::Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Budgets {
     /// Largest max abs allowed at any output.
@@ -76,7 +77,7 @@ impl Budgets {
 }
 
 /// Whether an offender is a graph output or a site.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum Scope {
     Output,
@@ -84,7 +85,7 @@ pub enum Scope {
 }
 
 /// One figure over its budget.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, JsonSchema)]
 pub struct Offender {
     pub scope: Scope,
     /// The output's name, or the site's output tensor.

@@ -10,6 +10,7 @@
 use std::time::Instant;
 
 use anyhow::{Context, Result, ensure};
+use schemars::JsonSchema;
 use serde::Serialize;
 
 use super::stats::quantile;
@@ -17,7 +18,7 @@ use crate::onnx::Model;
 use crate::run::{self, Compiled, Sample, TractModel};
 
 /// How many times to run.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, JsonSchema)]
 pub struct LatencyOptions {
     /// Timed runs of each model.
     pub runs: usize,
@@ -36,7 +37,7 @@ impl Default for LatencyOptions {
 }
 
 /// The spread of one model's run times, in seconds.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, JsonSchema)]
 pub struct Timing {
     pub median_s: f64,
     pub p10_s: f64,
@@ -44,7 +45,7 @@ pub struct Timing {
 }
 
 /// End-to-end latency of both models.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, JsonSchema)]
 pub struct EndToEnd {
     pub a: Timing,
     pub b: Timing,
@@ -55,7 +56,7 @@ pub struct EndToEnd {
 }
 
 /// Latency of one site's original and new form, isolated.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, JsonSchema)]
 pub struct SiteLatency {
     pub a_median_s: f64,
     pub b_median_s: f64,

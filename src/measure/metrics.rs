@@ -19,10 +19,11 @@
 
 use anyhow::{Result, ensure};
 use ndarray::{ArrayD, Axis};
+use schemars::JsonSchema;
 use serde::Serialize;
 
 /// How two values are judged close, and the floor of the relative error's denominator.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, JsonSchema)]
 pub struct Tolerance {
     pub atol: f64,
     pub rtol: f64,
@@ -42,7 +43,7 @@ impl Default for Tolerance {
 }
 
 /// The drift figures of one tensor (over all samples).
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, JsonSchema)]
 pub struct Drift {
     /// All elements, finite or not.
     pub elements: u64,
@@ -209,7 +210,7 @@ pub fn drift(reference: &ArrayD<f64>, candidate: &ArrayD<f64>, tol: Tolerance) -
 }
 
 /// How often the candidate's top class is the reference's, over every row of every sample.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, JsonSchema)]
 pub struct Top1 {
     /// Rows compared: every index of the leading axes, in every sample.
     pub rows: u64,

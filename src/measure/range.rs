@@ -1,13 +1,14 @@
 //! The range of values a site's input took over all samples.
 
 use ndarray::ArrayD;
+use schemars::JsonSchema;
 use serde::Serialize;
 
 use super::stats::quantile;
 
 /// Observed input range: extremes and the 1st and 99th percentiles (numpy's linear method) of
 /// the finite values.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, JsonSchema)]
 pub struct InputRange {
     pub min: f64,
     pub max: f64,

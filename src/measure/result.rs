@@ -1,4 +1,6 @@
-//! What a comparison reports, and its JSON form (`actswap drift --json`).
+//! What a comparison reports, and its JSON form (`actswap drift --json`, which adds
+//! `schema_version` first and `budget_source`, `verdict`, `reasons` last; the JSON Schema:
+//! `actswap schema drift`).
 //!
 //! # JSON schema
 //! Keys appear in this order; figures are numbers, and a number that is not finite (say a ratio
@@ -48,6 +50,9 @@
 //! ```
 //! See [`super::metrics`] for the definitions and [`super::budget`] for what offends.
 
+use std::borrow::Cow;
+
+use schemars::{JsonSchema, Schema, SchemaGenerator};
 use serde::{Serialize, Serializer};
 
 use super::budget::{Budgets, Offender};
@@ -63,7 +68,7 @@ medical, automotive or other safety-relevant role, validate the converted model 
 domain requires (its standards, test sets and sign-off), not with this verdict.";
 
 /// The result of comparing an original model with its rewrite.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, JsonSchema)]
 pub struct DriftReport {
     pub model_a: String,
     pub model_b: String,
@@ -105,7 +110,7 @@ pub struct SiteDrift {
 }
 
 /// The JSON of a [`SiteDrift`]: kinds by id, parameters by name.
-#[derive(Serialize)]
+#[derive(Serialize, JsonSchema)]
 struct SiteDriftJson<'a> {
     id_a: &'a str,
     id_b: &'a str,
@@ -155,8 +160,18 @@ impl Serialize for SiteDrift {
     }
 }
 
+impl JsonSchema for SiteDrift {
+    fn schema_name() -> Cow<'static, str> {
+        "SiteDrift".into()
+    }
+
+    fn json_schema(g: &mut SchemaGenerator) -> Schema {
+        SiteDriftJson::json_schema(g)
+    }
+}
+
 /// How a site's local drift was obtained.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum LocalBasis {
     /// Both forms were isolated and run on the original site's input.
@@ -166,7 +181,7 @@ pub enum LocalBasis {
 }
 
 /// One graph output.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, JsonSchema)]
 pub struct OutputDrift {
     pub name: String,
     pub metrics: Option<Drift>,
@@ -175,12 +190,13 @@ pub struct OutputDrift {
 }
 
 /// A site found in only one of the models.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, JsonSchema)]
 pub struct UnmatchedSite {
     /// `a` (original) or `b` (rewritten).
     pub model: &'static str,
     pub id: String,
     #[serde(serialize_with = "kind_id")]
+    #[schemars(with = "String")]
     pub kind: &'static Kind,
     pub output: String,
     pub graph: String,
@@ -201,11 +217,4 @@ impl UnmatchedSite {
 
 fn kind_id<S: Serializer>(kind: &&'static Kind, s: S) -> Result<S::Ok, S::Error> {
     s.serialize_str(kind.id)
-}
-
-impl DriftReport {
-    /// The report as JSON (see the module doc).
-    pub fn to_json(&self) -> serde_json::Value {
-        serde_json::to_value(self).expect("a drift report serializes")
-    }
 }

@@ -4,15 +4,19 @@
 use std::collections::BTreeMap;
 use std::fmt::Write;
 
+use schemars::JsonSchema;
 use serde::Serialize;
 
 use super::index::{GraphKind, ModelIndex};
 use super::proto::{ValueInfoProto, tensor_proto::DataType};
 use super::tensor;
+use crate::schema_version::SchemaVersion;
 use crate::text::escape;
 
-#[derive(Debug, Serialize)]
+/// What `actswap info` shows (`--json`).
+#[derive(Debug, Serialize, JsonSchema)]
 pub struct Summary {
+    pub schema_version: SchemaVersion,
     pub model: String,
     pub ir_version: i64,
     pub producer_name: String,
@@ -26,7 +30,7 @@ pub struct Summary {
     pub external_data: Vec<String>,
 }
 
-#[derive(Debug, Serialize)]
+#[derive(Debug, Serialize, JsonSchema)]
 pub struct GraphSummary {
     pub path: String,
     pub nodes: usize,
@@ -38,7 +42,7 @@ pub struct GraphSummary {
     pub initializer_bytes: u64,
 }
 
-#[derive(Debug, Serialize)]
+#[derive(Debug, Serialize, JsonSchema)]
 pub struct ValueSummary {
     pub name: String,
     /// The TensorProto data type name (FLOAT, INT64, ...), or null when not a typed tensor.
@@ -59,6 +63,7 @@ impl Summary {
                 .collect::<Vec<_>>()
         };
         Ok(Summary {
+            schema_version: SchemaVersion,
             model: index.model.path().display().to_string(),
             ir_version: m.ir_version(),
             producer_name: m.producer_name().into(),

@@ -9,10 +9,9 @@
 //! model declares is never offered: the opset is not changed, and a model whose opset is above
 //! the target's gets that one reason for every site.
 
+pub mod json;
 pub mod profile;
 pub mod request;
-
-use serde_json::{Value, json};
 
 use crate::catalog::emit::{EmitCtx, Emitted, Unavailable};
 use crate::catalog::substitute::{self, ErrorBound};
@@ -132,64 +131,6 @@ impl Plan {
             _ => None,
         })
     }
-
-    /// The stable JSON form of the plan.
-    pub fn to_json(&self) -> Value {
-        let sites: Vec<Value> = self
-            .sites
-            .iter()
-            .map(|p| {
-                let s = &p.site;
-                let mut v = json!({
-                    "site": s.id, "kind": s.kind.id, "params": s.named_params(), "graph": s.graph,
-                    "output": s.output,
-                    "from": {"form": s.spelling, "ops": s.ops},
-                });
-                match &p.action {
-                    Action::Keep { reason } => {
-                        v["action"] = "keep".into();
-                        v["reason"] = reason.clone().into();
-                    }
-                    Action::Unserved { reason } => {
-                        v["action"] = "unserved".into();
-                        v["reason"] = reason.clone().into();
-                    }
-                    Action::Rewrite(r) => {
-                        v["action"] = "rewrite".into();
-                        v["to"] = json!({
-                            "kind": r.kind.id,
-                            "params": r.params.named(r.kind.params),
-                            "form": r.form.name(),
-                            "ops": r.ops(),
-                        });
-                        v["rule"] = r.rule.map_or(Value::Null, Value::from);
-                        v["error_bound"] = bound_json(&r.bound);
-                    }
-                }
-                v
-            })
-            .collect();
-        json!({
-            "sites": sites,
-            "rewrites": self.rewrites().count(),
-            "unserved": self.unserved(),
-            "warnings": self.warnings,
-        })
-    }
-}
-
-/// An error bound as JSON; infinities as strings so a gate cannot read them as numbers.
-pub fn bound_json(b: &ErrorBound) -> Value {
-    let num = |x: f64| {
-        if x.is_finite() {
-            Value::from(x)
-        } else if x > 0.0 {
-            Value::from("inf")
-        } else {
-            Value::from("-inf")
-        }
-    };
-    json!({"max_abs": num(b.value), "at": num(b.at)})
 }
 
 const EXACT: ErrorBound = ErrorBound {

@@ -21,10 +21,12 @@
 //! site_max_abs = 0.2        # each site's local drift
 //! ```
 
+use std::borrow::Cow;
 use std::collections::BTreeMap;
 use std::path::Path;
 
 use anyhow::{Context, Result, bail};
+use schemars::{JsonSchema, Schema, SchemaGenerator, json_schema};
 use serde::{Deserialize, Deserializer};
 use sha2::{Digest, Sha256};
 
@@ -32,7 +34,7 @@ use crate::measure::Budgets;
 use crate::onnx::proto::tensor_proto::DataType;
 
 /// The form a site the target rejects is rewritten to first.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Default)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Default, JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum Prefer {
     /// Exact forms in the order fused, primitive.
@@ -61,6 +63,20 @@ impl<'de> Deserialize<'de> for OpsetRange {
     fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
         let text = String::deserialize(d)?;
         parse_range(&text).map_err(serde::de::Error::custom)
+    }
+}
+
+impl JsonSchema for OpsetRange {
+    fn schema_name() -> Cow<'static, str> {
+        "OpsetRange".into()
+    }
+
+    fn json_schema(_: &mut SchemaGenerator) -> Schema {
+        json_schema!({
+            "description": "Opsets an op runs at: \"*\" any, \">=N\", \"<=N\", \"N-M\" or \"N\".",
+            "type": "string",
+            "pattern": "^\\s*(\\*|>=\\s*\\d+|<=\\s*\\d+|\\d+\\s*-\\s*\\d+|\\d+)\\s*$",
+        })
     }
 }
 
@@ -141,6 +157,30 @@ impl<'de> Deserialize<'de> for OpRule {
     }
 }
 
+impl JsonSchema for OpRule {
+    fn schema_name() -> Cow<'static, str> {
+        "OpRule".into()
+    }
+
+    fn json_schema(g: &mut SchemaGenerator) -> Schema {
+        let range = g.subschema_for::<OpsetRange>();
+        json_schema!({
+            "description": "The opsets an op runs at, alone or with the element types it takes (ONNX names in any case: float, float16, int8, ...).",
+            "anyOf": [
+                range,
+                {
+                    "type": "object",
+                    "properties": {
+                        "opsets": range,
+                        "types": {"type": "array", "items": {"type": "string"}},
+                    },
+                    "required": ["opsets"],
+                },
+            ],
+        })
+    }
+}
+
 /// An element type by its ONNX name, in any case (`float`, `FLOAT16`, `int8`).
 fn elem_type(name: &str) -> Result<DataType, String> {
     DataType::from_str_name(&name.to_ascii_uppercase())
@@ -160,15 +200,19 @@ pub enum Origin {
 }
 
 /// A target profile.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Profile {
     pub name: String,
+    /// One line on the runtime, shown by `actswap targets`.
     #[serde(default)]
     pub description: String,
+    /// Highest default-domain opset the target runs (none: any).
     pub max_opset: Option<i64>,
+    /// The form for sites the target rejects: keep (fused, then primitive), fused or primitive.
     #[serde(default)]
     pub prefer: Prefer,
+    /// Worst-case |error| over the real line allowed for an approximation (0: exact forms only).
     #[serde(default)]
     pub max_approx_error: f64,
     /// Accepted ops by type (`domain:Op` outside the default domain); `*` for every other

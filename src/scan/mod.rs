@@ -16,12 +16,14 @@ mod wiring;
 use std::collections::{BTreeMap, HashMap, HashSet};
 use std::rc::Rc;
 
+use schemars::JsonSchema;
 use serde::Serialize;
 
 use crate::catalog::{self, ConstInput, FusedNode, Kind, Params};
 use crate::onnx::index::{GraphIndex, ModelIndex};
 use crate::onnx::proto::NodeProto;
 use crate::onnx::proto::tensor_proto::DataType;
+use crate::schema_version::SchemaVersion;
 use expr::{Const, Expr, MAX_CHAIN, Op, Operand, Step};
 pub use site::{Site, Spelling, TypeReader};
 use types::{Types, is_float};
@@ -36,9 +38,10 @@ const MAX_CHANNELS: usize = 4096;
 /// constants (identification's probes hold the rest).
 const SAME_PARAMS: f64 = 1e-5;
 
-/// What `scan` reports for a model.
-#[derive(Debug, Serialize)]
+/// What `scan` reports for a model (`actswap scan --json`).
+#[derive(Debug, Serialize, JsonSchema)]
 pub struct ScanReport {
+    pub schema_version: SchemaVersion,
     pub model: String,
     pub opsets: BTreeMap<String, i64>,
     pub sites: Vec<Site>,
@@ -63,6 +66,7 @@ pub fn scan(index: &ModelIndex) -> ScanReport {
         *counts.entry(s.kind.id).or_insert(0) += 1;
     }
     ScanReport {
+        schema_version: SchemaVersion,
         model: index.model.path().display().to_string(),
         opsets: index.opsets(),
         sites,

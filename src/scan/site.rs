@@ -1,13 +1,16 @@
 //! An activation site: typed data that every later stage (plan, rewrite, measure, report) takes
 //! as is, without going back to the graph.
 
+use std::borrow::Cow;
+
+use schemars::{JsonSchema, Schema, SchemaGenerator};
 use serde::{Serialize, Serializer};
 
 use crate::catalog::{Kind, NamedParams, ParamValue, Params};
 use crate::onnx::proto::tensor_proto::DataType;
 
 /// How the site is spelled in the graph.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, JsonSchema)]
 #[serde(rename_all = "lowercase")]
 pub enum Spelling {
     /// One node of an op that computes the kind.
@@ -83,9 +86,11 @@ impl Site {
 }
 
 /// The scan JSON of a site (the stable schema of `actswap scan --json`).
-#[derive(Serialize)]
+#[derive(Serialize, JsonSchema)]
 struct SiteJson<'a> {
+    /// Stable id: `s<N>`, numbered in graph order, then node order.
     id: &'a str,
+    /// The kind's id (see `actswap catalog`).
     kind: &'static str,
     params: NamedParams<'a>,
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -122,5 +127,15 @@ impl Serialize for Site {
             notes: &self.notes,
         }
         .serialize(s)
+    }
+}
+
+impl JsonSchema for Site {
+    fn schema_name() -> Cow<'static, str> {
+        "Site".into()
+    }
+
+    fn json_schema(g: &mut SchemaGenerator) -> Schema {
+        SiteJson::json_schema(g)
     }
 }

@@ -7,6 +7,7 @@ use std::collections::HashSet;
 use std::sync::Arc;
 
 use tract_onnx::prelude::*;
+use tract_onnx::tract_core::optim::Optimizer;
 
 use super::blame::panicking_node;
 use super::guard::{Failure, catch, guarded};
@@ -25,6 +26,21 @@ pub struct Compiled {
     input_shapes: Vec<Vec<usize>>,
     outputs: Vec<String>,
     origins: Arc<NodeOrigins>,
+}
+
+/// tract's own optimizer (declutter, then codegen) without its pass that merges identical
+/// sibling nodes: that pass walks the whole graph again after every merge, which makes
+/// optimizing grow with the square of the node count on graphs with many outputs (every site's
+/// tensors are outputs when drift is captured). It saves work only where an exporter duplicated
+/// a computation; it changes no value.
+fn optimize(mut model: TypedModel) -> TractResult<TypedModel> {
+    for mut optimizer in [Optimizer::declutter(), Optimizer::codegen()] {
+        optimizer
+            .passes
+            .retain(|pass| !format!("{pass:?}").starts_with("PushSplitDown"));
+        model.optimize_with_session(&mut optimizer.session())?;
+    }
+    Ok(model)
 }
 
 impl TractModel {
@@ -62,8 +78,7 @@ impl TractModel {
         };
         ceiling::check(&typed, self.memory_ceiling, &self.origins)?;
         let attribute = |e| self.origins.attribute(e);
-        let optimized =
-            guarded("optimize the model", || typed.into_optimized()).map_err(attribute)?;
+        let optimized = guarded("optimize the model", || optimize(typed)).map_err(attribute)?;
         let runnable =
             guarded("plan the model", || optimized.into_runnable()).map_err(attribute)?;
         Ok(Compiled {

@@ -47,7 +47,7 @@ fn swap_writes_a_fitted_form_with_the_declared_range() {
         "--fit-range=silu=-8,8",
     ]);
     let v = json(&out);
-    let silu = sites_of(&v["plan"], "silu");
+    let silu = sites_of(&v, "silu");
     assert!(!silu.is_empty());
     for s in silu {
         assert_eq!(s["action"], "rewrite");
@@ -88,7 +88,7 @@ fn without_a_count_the_fewest_segments_within_the_allowance() {
         "--to",
         "silu=fitted",
     ]));
-    let s = sites_of(&v["plan"], "silu")[0];
+    let s = sites_of(&v, "silu")[0];
     let fit = &s["fit"];
     assert_eq!(fit["range_source"], "default");
     assert!(fit["in_range"]["max_abs"].as_f64().unwrap() <= 0.01);
@@ -102,7 +102,7 @@ fn without_a_count_the_fewest_segments_within_the_allowance() {
         "--to",
         &fewer,
     ]));
-    let s = sites_of(&v["plan"], "silu")[0];
+    let s = sites_of(&v, "silu")[0];
     assert!(s["fit"]["in_range"]["max_abs"].as_f64().unwrap() > 0.01);
 }
 
@@ -178,7 +178,7 @@ fn a_tight_target_falls_back_to_fitted_forms_over_observed_ranges() {
         path(&capped),
     ]);
     let v = json(&out);
-    let silu = sites_of(&v["plan"], "silu")[0];
+    let silu = sites_of(&v, "silu")[0];
     assert_eq!(silu["action"], "unserved");
     let reason = silu["reason"].as_str().unwrap();
     assert!(

@@ -187,12 +187,17 @@ fn the_emitted_graph_computes_the_fit_in_tract() {
                 let t = tract_ndarray::Array1::from(xs.clone())
                     .into_dyn()
                     .into_tensor();
-                run(&bytes, t).as_slice::<f64>().unwrap().to_vec()
+                run(&bytes, t)
+                    .to_plain_array_view::<f64>()
+                    .unwrap()
+                    .iter()
+                    .copied()
+                    .collect()
             } else {
                 let v: Vec<f32> = xs.iter().map(|&x| x as f32).collect();
                 let t = tract_ndarray::Array1::from(v).into_dyn().into_tensor();
                 run(&bytes, t)
-                    .as_slice::<f32>()
+                    .to_plain_array_view::<f32>()
                     .unwrap()
                     .iter()
                     .map(|&y| y as f64)

@@ -6,8 +6,11 @@ error of onnxruntime's output against numpy's float64 evaluation of the kind's f
 grid must be:
 - float64 models: at most the bound actswap reports (+1e-6), and within 1e-6 of it (inside the
   fitting range; over [-100, 100] at most the real-line bound);
-- float32 models: at most the bound + 1e-6 (the float32 rounding of the emitted sum stays below
-  that at the grid's magnitudes).
+- float32 models: at most the bound + 1e-6 inside [-8, 8]; over [-100, 100], where a float32
+  output near 100 is itself only defined to 3.8e-6, at most the bound + (K + 3) * eps32 *
+  (1 + |x|) at each point: the rounding of the K + 3 float32 additions of the emitted sum
+  (the standard model of floating-point addition, Higham, "Accuracy and Stability of Numerical
+  Algorithms", 2002, ch. 2), as tests/fitted_forms.rs allows.
 The formulas are those the catalogue cites (SiLU: Elfwing et al. 2017; GELU: Hendrycks & Gimpel
 2016; Mish: Misra 2019; ELU: Clevert et al. 2015; swish: Ramachandran et al. 2017). The figure
 to beat is hard-swish's 3 / (1 + e^3) = 0.1423 against SiLU (Howard et al. 2019): the 8-segment
@@ -116,21 +119,24 @@ def fitted(src, out, kind, segments):
     res = subprocess.run(args, capture_output=True, text=True)
     if res.returncode != 0:
         raise RuntimeError(f"{' '.join(args[1:])}: exit {res.returncode}: {res.stderr.strip()}")
-    sites = json.loads(res.stdout)["plan"]["sites"]
+    sites = json.loads(res.stdout)["sites"]
     assert len(sites) == 1 and sites[0]["action"] == "rewrite", sites
     assert sites[0]["to"]["form"] == "fitted", sites[0]["to"]
     return sites[0]["fit"]
 
 
-def measured(path, kind, xs, elem):
+def measured(path, kind, xs, elem, segments):
+    """Max |onnxruntime - numpy|, and the max of that error less the float32 rounding allowed."""
     dtype = np.float64 if elem == TensorProto.DOUBLE else np.float32
     x = xs.astype(dtype)
     if kind == "swish":
         x = np.broadcast_to(x.reshape(1, 1, -1, 1), (1, 3, x.size, 1)).copy()
     sess = ort.InferenceSession(path, providers=["CPUExecutionProvider"])
     (y,) = sess.run(None, {"x": x})
-    ref = KINDS[kind](x.astype(np.float64))
-    return float(np.max(np.abs(y.astype(np.float64) - ref)))
+    wide = x.astype(np.float64)
+    err = np.abs(y.astype(np.float64) - KINDS[kind](wide))
+    rounding = 0.0 if elem == TensorProto.DOUBLE else (segments + 3) * float(np.finfo(np.float32).eps) * (1.0 + np.abs(wide))
+    return float(err.max()), float((err - rounding).max())
 
 
 def main():
@@ -150,8 +156,8 @@ def main():
                         onnx.checker.check_model(onnx.load(out), full_check=True)
                         bound_in = fit["in_range"]["max_abs"]
                         bound_reals = fit["over_reals"]["max_abs"]
-                        err_in = measured(out, kind, inside, elem)
-                        err_wide = measured(out, kind, wide, elem)
+                        err_in, _ = measured(out, kind, inside, elem, segments)
+                        err_wide, excess_wide = measured(out, kind, wide, elem, segments)
                     except Exception as e:  # noqa: BLE001 - every failure is reported
                         failures.append(f"{name}: {e}")
                         continue
@@ -160,7 +166,7 @@ def main():
                           f"onnxruntime {err_in:.6g} (over [-100, 100] {err_wide:.6g})")
                     if err_in > bound_in + SLACK:
                         failures.append(f"{name}: measured {err_in} above the bound {bound_in}")
-                    if err_wide > bound_reals + SLACK:
+                    if excess_wide > bound_reals + SLACK:
                         failures.append(f"{name}: measured {err_wide} above the real-line bound {bound_reals}")
                     if elem == TensorProto.DOUBLE and bound_in - err_in > SLACK:
                         failures.append(f"{name}: bound {bound_in} more than {SLACK} above measured {err_in}")

@@ -72,7 +72,7 @@ impl FitRange {
 
 impl fmt::Display for FitRange {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "[{}, {}]", self.lo, self.hi)
+        write!(f, "[{:.4}, {:.4}]", self.lo, self.hi)
     }
 }
 

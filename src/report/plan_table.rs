@@ -43,7 +43,9 @@ pub fn render(plan: &Plan) -> String {
                     } else {
                         format!("{}({})", t.kind.id, params.join(" "))
                     };
-                    let over_reals = if t.bound.value.is_finite() {
+                    let over_reals = if t.bound.value.is_finite() && t.bound.at.is_infinite() {
+                        format!("{:.3e} as x -> {}", t.bound.value, t.bound.at)
+                    } else if t.bound.value.is_finite() {
                         format!("{:.3e} at x={:.4}", t.bound.value, t.bound.at)
                     } else {
                         "unbounded".into()
@@ -61,8 +63,9 @@ pub fn render(plan: &Plan) -> String {
                             );
                             (
                                 format!(
-                                    "{kind}:fitted ({} segments; {})",
+                                    "{kind}:fitted ({} segment{}; {})",
                                     fit.segments,
+                                    if fit.segments == 1 { "" } else { "s" },
                                     ops.join(" ")
                                 ),
                                 format!(

@@ -79,7 +79,12 @@ pub fn of(f: &dyn Fn(f64) -> f64, pwl: &Pwl, range: FitRange, breaks: &[f64]) ->
             };
             break;
         }
-        whole = larger(whole, sup(&err, &xs));
+        let mut tail = sup(&err, &xs);
+        // The largest error at the farthest samples is a limit approached as x goes to infinity.
+        if (tail.at - end).abs() >= TAIL_LAST / 2.0 {
+            tail.at = side * f64::INFINITY;
+        }
+        whole = larger(whole, tail);
     }
     FitBound {
         in_range: margin(inside),

@@ -215,10 +215,7 @@ pub fn describe(kind: &'static Kind) -> String {
     }
     let range = fit::DEFAULT_RANGE;
     section(
-        &format!(
-            "Fitted forms (piecewise-linear, fitted over {range}, default parameters, float32 \
-             constants)"
-        ),
+        &format!("Fitted forms (over {range}, default parameters, float32 constants)"),
         fitted_bounds(kind),
     );
     out
@@ -304,6 +301,7 @@ mod tests {
                 "Emitted forms (each op with the opset it needs, for float32)",
                 "Example",
                 "Numeric notes",
+                "Fitted forms (over [-8, 8], default parameters, float32 constants)",
             ] {
                 assert!(text.contains(&format!("\n{s}\n")), "{} lacks {s}", k.id);
             }

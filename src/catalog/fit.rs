@@ -72,7 +72,8 @@ impl FitRange {
 
 impl fmt::Display for FitRange {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "[{:.4}, {:.4}]", self.lo, self.hi)
+        let short = |v: f64| (v * 1e4).round() / 1e4;
+        write!(f, "[{}, {}]", short(self.lo), short(self.hi))
     }
 }
 

@@ -3,10 +3,11 @@
 //! Inside the range, the knots and the kind's breakpoints split it into pieces where the error
 //! is smooth; each piece is sampled at 33 points and every local maximum of |error| refined by
 //! golden-section search between its neighbours. Outside, each side is sampled geometrically
-//! (8 points per octave, from 1e-3 to 1e10 beyond the range end, plus the breakpoints there) and
-//! refined the same way; beyond 1e10 every catalogue kind is on its asymptote to within 1e-10
-//! (softsign, the slowest, approaches it like 1/|x|), and a tail whose error still grows at
-//! 1e10 is reported as unbounded.
+//! (8 points per octave, from 1e-3 to 1e8 beyond the range end, plus the breakpoints there) and
+//! refined the same way. Beyond 1e8 every catalogue kind is on its asymptote to within 1e-8
+//! (softsign, the slowest, approaches it like 1/|x|; the others exponentially), so 1e-8 is added
+//! to the bound over the real line; a tail whose error still grows at 1e8 is reported as
+//! unbounded.
 //!
 //! The reported values are the computed maxima plus a margin of 1e-9 relative and 1e-12
 //! absolute, so that f64 rounding of the evaluation cannot put a bound below the error.
@@ -18,7 +19,9 @@ use super::{FitRange, Pwl};
 const PIECE_SAMPLES: usize = 33;
 /// Geometric tail samples: first offset, last offset and points per octave.
 const TAIL_FIRST: f64 = 1e-3;
-const TAIL_LAST: f64 = 1e10;
+const TAIL_LAST: f64 = 1e8;
+/// How far beyond `TAIL_LAST` a catalogue kind may still be from its asymptote.
+const TAIL_RESIDUAL: f64 = 1e-8;
 const PER_OCTAVE: f64 = 8.0;
 /// Margin added to every reported maximum.
 const RELATIVE_MARGIN: f64 = 1e-9;
@@ -72,7 +75,7 @@ pub fn of(f: &dyn Fn(f64) -> f64, pwl: &Pwl, range: FitRange, breaks: &[f64]) ->
         xs.dedup();
         let far = end + side * TAIL_LAST;
         let nearer = end + side * TAIL_LAST / 10.0;
-        if err(far) > 10.0 * err(nearer).max(1e-6) {
+        if err(far) > 5.0 * err(nearer).max(1e-6) {
             whole = ErrorBound {
                 value: f64::INFINITY,
                 at: side * f64::INFINITY,
@@ -88,7 +91,10 @@ pub fn of(f: &dyn Fn(f64) -> f64, pwl: &Pwl, range: FitRange, breaks: &[f64]) ->
     }
     FitBound {
         in_range: margin(inside),
-        over_reals: margin(whole),
+        over_reals: margin(ErrorBound {
+            value: whole.value + TAIL_RESIDUAL,
+            ..whole
+        }),
     }
 }
 

@@ -13,12 +13,15 @@
 //!   `(mean / its error)^(1/4)` (clamped to a factor of 2^(1/2) per round), since a chord's
 //!   error grows like the square of its length.
 //!
-//! The best round of [`ROUNDS`] is kept.
+//! The best round is kept; the rounds stop after [`ROUNDS`], or after [`PATIENCE`] rounds that
+//! did not lower the best error by a thousandth.
 
 use super::{FitRange, Pwl};
 
 /// Rounds of knot moving.
 const ROUNDS: usize = 60;
+/// Rounds without a gain of 1e-3 (relative) before the fit stops.
+const PATIENCE: usize = 8;
 /// Samples per piece, ends included.
 const SAMPLES: usize = 48;
 
@@ -31,6 +34,7 @@ pub fn fit(f: &dyn Fn(f64) -> f64, range: FitRange, segments: usize, tails: (f64
         .map(|j| lo + (hi - lo) * j as f64 / pieces as f64)
         .collect();
     let mut best: Option<(f64, Vec<f64>, Vec<f64>)> = None;
+    let mut stale = 0;
     let mut xs = vec![0.0; SAMPLES];
     let mut fs: Vec<Vec<f64>> = vec![vec![0.0; SAMPLES]; pieces];
     let mut sample_x: Vec<Vec<f64>> = vec![vec![0.0; SAMPLES]; pieces];
@@ -82,8 +86,15 @@ pub fn fit(f: &dyn Fn(f64) -> f64, range: FitRange, segments: usize, tails: (f64
         if !worst.is_finite() {
             break;
         }
+        match &best {
+            Some(b) if worst >= b.0 * (1.0 - 1e-3) => stale += 1,
+            _ => stale = 0,
+        }
         if best.as_ref().is_none_or(|b| worst < b.0) {
             best = Some((worst, t.clone(), y.clone()));
+        }
+        if stale >= PATIENCE {
+            break;
         }
         let mean = errors.iter().sum::<f64>() / pieces as f64;
         if mean <= 0.0 {

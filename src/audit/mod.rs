@@ -105,7 +105,7 @@ pub fn audit(
             a: p.site.clone(),
             b,
             fit: match &p.action {
-                Action::Rewrite(r) => r.fit.as_ref().map(|(f, _)| f.clone()),
+                Action::Rewrite(r) => r.fit.as_deref().map(|(f, _)| f.clone()),
                 _ => None,
             },
         })

@@ -153,7 +153,7 @@ impl Plan {
                         },
                         rule: r.rule,
                         error_bound: BoundJson::from(&r.bound),
-                        fit: r.fit.as_ref().map(|(f, source)| FitJson {
+                        fit: r.fit.as_deref().map(|(f, source)| FitJson {
                             segments: f.segments,
                             range: [f.range.lo, f.range.hi],
                             range_source: *source,

@@ -51,7 +51,7 @@ pub struct Replacement {
     /// Worst-case |error| over the real line against the site's own kind (0 for exact forms).
     pub bound: ErrorBound,
     /// The fit, for the fitted form, and where its range came from.
-    pub fit: Option<(Fitted, RangeSource)>,
+    pub fit: Option<Box<(Fitted, RangeSource)>>,
     /// The forms weighed before this one and why each was passed over.
     pub alternatives: Vec<String>,
     /// The form written for the site: it reads the site's input and writes its output; every
@@ -377,7 +377,7 @@ fn rewrite_fitted(
         form: Form::Fitted,
         rule: None,
         bound: fitted.bound.over_reals,
-        fit: Some((fitted, source)),
+        fit: Some(Box::new((fitted, source))),
         alternatives,
         emitted,
     })

@@ -51,7 +51,7 @@ pub fn render(plan: &Plan) -> String {
                         "unbounded".into()
                     };
                     let mut why = t.rule.unwrap_or("").to_string();
-                    let (to, bound) = match &t.fit {
+                    let (to, bound) = match t.fit.as_deref() {
                         Some((fit, source)) => {
                             let mut ops = t.ops();
                             ops.sort();

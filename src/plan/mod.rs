@@ -243,7 +243,11 @@ fn plan_site(site: &Site, policy: &Policy) -> Action {
                 Err(reason) => Action::Unserved { reason },
             };
         }
-        let Some(c) = candidates(kind, params, r.to).into_iter().next() else {
+        // Only the kind asked for (the site's own when none): no other bound is needed.
+        let Some(c) = candidates(kind, params, Some(r.to.unwrap_or(kind)))
+            .into_iter()
+            .next()
+        else {
             return Action::Unserved {
                 reason: format!(
                     "the catalogue has no substitution from {} to {}",

@@ -83,6 +83,7 @@ fn tails_follow_the_asymptotes() {
         ("tanh", vec![], (0.0, 0.0)),
         ("elu", vec![0.5], (0.0, 1.0)),
         ("softplus", vec![], (0.0, 1.0)),
+        ("leaky_relu", vec![0.1f32 as f64], (0.1f32 as f64, 1.0)),
     ] {
         let f = fitted(id, &params, 8, DataType::Float);
         let pwl = &f.channels[0];
@@ -97,6 +98,7 @@ fn tails_follow_the_asymptotes() {
             assert!(e <= f.bound.over_reals.value, "{id} at {x}: {e}");
         }
         assert!(f.bound.over_reals.value >= f.bound.in_range.value);
+        assert!(f.bound.over_reals.value < 0.1, "{id}: {:?}", f.bound);
     }
     assert!(matches!(
         fit::asymptotes(kind("squared_relu"), &[]),

@@ -205,8 +205,8 @@ pub fn asymptotes(kind: &'static Kind, p: &[f64]) -> Result<(f64, f64), FitError
         if !(s1.is_finite() && s2.is_finite()) || (s1 - s2).abs() > 1e-9 * (1.0 + s2.abs()) {
             return Err(none);
         }
-        // The slope of p(x) as x grows in the direction `side`, as a slope in x.
-        let s = s2 * side * side;
+        // d f / d x = side * d kind / d x: the kind's slope in x.
+        let s = s2 * side;
         Ok(if (s - s.round()).abs() <= 1e-9 {
             s.round()
         } else {

@@ -345,6 +345,10 @@ fn every_sample_converts_under_every_built_in_target() {
                 let Action::Rewrite(r) = &p.action else {
                     continue;
                 };
+                if r.form == actswap::catalog::Form::Fitted {
+                    // A fitted form approximates its kind: it is not identified as the kind.
+                    continue;
+                }
                 let mobilenet = r.params.scalar_values().is_some_and(|v| v == [1.0]);
                 if r.kind.id == "hard_swish" && !mobilenet {
                     // Identification reports hard-swish only at MobileNetV3's slope (beta 1):

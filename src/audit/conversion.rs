@@ -7,9 +7,10 @@ use anyhow::{Result, bail};
 use crate::measure::{Budgets, DEFAULT_BUDGET};
 use crate::onnx::ModelIndex;
 use crate::plan::profile::Profile;
+use crate::plan::ranges::FitRanges;
 use crate::plan::request::Request;
 use crate::plan::{Plan, Policy};
-use crate::scan;
+use crate::scan::{self, Site};
 
 /// Parsed requests or profile, checked before any model is read.
 #[derive(Debug, Clone)]
@@ -17,6 +18,8 @@ pub struct Conversion {
     requests: Vec<Request>,
     profile: Option<Profile>,
     sites: Vec<String>,
+    /// Declared fitting ranges (`--fit-range`).
+    ranges: FitRanges,
 }
 
 impl Conversion {
@@ -34,7 +37,32 @@ impl Conversion {
             requests,
             profile,
             sites,
+            ranges: FitRanges::default(),
         })
+    }
+
+    /// The same conversion with declared fitting ranges.
+    pub fn with_fit_ranges(mut self, ranges: FitRanges) -> Conversion {
+        self.ranges = ranges;
+        self
+    }
+
+    /// The declared fitting ranges.
+    pub fn fit_ranges(&self) -> &FitRanges {
+        &self.ranges
+    }
+
+    /// True when a site may get a fitted form, so that observing input ranges is worth a run.
+    pub fn may_fit(&self) -> bool {
+        self.policy(&self.ranges).may_fit()
+    }
+
+    fn policy<'a>(&'a self, ranges: &'a FitRanges) -> Policy<'a> {
+        Policy {
+            requests: &self.requests,
+            target: self.profile.as_ref(),
+            ranges,
+        }
     }
 
     /// The target profile, when one was given.
@@ -72,8 +100,20 @@ impl Conversion {
         (flags.or(base.0), source)
     }
 
-    /// Scans the model, keeps the sites asked for (refusing unknown ids) and plans them.
+    /// Scans the model, keeps the sites asked for (refusing unknown ids) and plans them with
+    /// the declared fitting ranges.
     pub fn plan(&self, index: &ModelIndex, model: &Path) -> Result<Plan> {
+        let sites = self.sites(index, model)?;
+        Ok(self.plan_sites(sites, index, &self.ranges))
+    }
+
+    /// Plans `sites` (from [`Conversion::sites`]) with these fitting ranges.
+    pub fn plan_sites(&self, sites: Vec<Site>, index: &ModelIndex, ranges: &FitRanges) -> Plan {
+        Plan::build(sites, &self.policy(ranges), index.main().opset(""))
+    }
+
+    /// The model's sites, only those asked for (refusing unknown ids).
+    pub fn sites(&self, index: &ModelIndex, model: &Path) -> Result<Vec<Site>> {
         let mut sites = scan::scan(index).sites;
         if !self.sites.is_empty() {
             for id in &self.sites {
@@ -86,10 +126,6 @@ impl Conversion {
             }
             sites.retain(|s| self.sites.contains(&s.id));
         }
-        let policy = Policy {
-            requests: &self.requests,
-            target: self.profile.as_ref(),
-        };
-        Ok(Plan::build(sites, &policy, index.main().opset("")))
+        Ok(sites)
     }
 }

@@ -21,7 +21,7 @@ pub use summary::{
 
 use crate::measure::{self, CompareOptions, DriftReport, SitePair};
 use crate::onnx::{Model, ModelIndex};
-use crate::plan::Plan;
+use crate::plan::{Action, Plan};
 use crate::rewrite::{self, Applied};
 use crate::run;
 
@@ -73,11 +73,20 @@ pub fn audit(
             }
         );
     }
-    let plan = conversion.plan(&index, path)?;
-    let (rewritten, applied) = rewrite::apply(&model, &index, &plan)?;
     let specs =
         run::input_specs(&model.encode()).with_context(|| format!("'{}'", path.display()))?;
     let loaded = inputs.load(&specs)?;
+    let sites = conversion.sites(&index, path)?;
+    let mut ranges = conversion.fit_ranges().clone();
+    if conversion.may_fit() {
+        let observed =
+            measure::calibrate::observe(&index, &sites, &loaded.samples, opts.memory_ceiling)?;
+        for (id, r) in observed {
+            ranges.observe(&id, r.min, r.max);
+        }
+    }
+    let plan = conversion.plan_sites(sites, &index, &ranges);
+    let (rewritten, applied) = rewrite::apply(&model, &index, &plan)?;
     let (budgets, budget_source) = conversion.budget(opts.budgets);
     let opts = CompareOptions {
         input_source: loaded.source,
@@ -95,6 +104,10 @@ pub fn audit(
         .map(|(b, p)| SitePair {
             a: p.site.clone(),
             b,
+            fit: match &p.action {
+                Action::Rewrite(r) => r.fit.as_deref().map(|(f, _)| f.clone()),
+                _ => None,
+            },
         })
         .collect();
     let drift = measure::compare(

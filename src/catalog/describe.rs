@@ -4,8 +4,10 @@
 use std::fmt::Write;
 
 use super::emit::{Form, OpNeed, Unavailable, min_opset};
+use super::fit;
 use super::kind::Kind;
 use super::substitute::{ErrorBound, rules};
+use crate::onnx::proto::tensor_proto::DataType;
 
 /// Text width the description wraps to.
 const WIDTH: usize = 96;
@@ -107,7 +109,7 @@ pub fn summary_row(kind: &Kind) -> Vec<String> {
 
 /// Human-readable description with sections Formula / Parameters / Source / Fused op / Forms /
 /// Emitted forms / Example / Numeric notes / Approximations.
-pub fn describe(kind: &Kind) -> String {
+pub fn describe(kind: &'static Kind) -> String {
     let mut out = format!("{}: {}\n", kind.id, kind.title);
     let mut section = |title: &str, lines: Vec<String>| {
         let _ = write!(out, "\n{title}\n");
@@ -211,7 +213,36 @@ pub fn describe(kind: &Kind) -> String {
             approx,
         );
     }
+    let range = fit::DEFAULT_RANGE;
+    section(
+        &format!("Fitted forms (over {range}, default parameters, float32 constants)"),
+        fitted_bounds(kind),
+    );
     out
+}
+
+/// The fitted form's bound at each of [`fit::CATALOG_SEGMENTS`] over [`fit::DEFAULT_RANGE`].
+fn fitted_bounds(kind: &'static Kind) -> Vec<String> {
+    let defaults = kind.defaults();
+    fit::CATALOG_SEGMENTS
+        .iter()
+        .map(
+            |&k| match fit::fit_channel(kind, &defaults, fit::DEFAULT_RANGE, k, DataType::Float) {
+                Ok((_, b)) => {
+                    let reals = if b.over_reals.value.is_finite() {
+                        format!("{:.3e}", b.over_reals.value)
+                    } else {
+                        "unbounded".to_string()
+                    };
+                    format!(
+                        "{k} segments: max |error| {:.3e} in the range, {reals} over the real line",
+                        b.in_range.value
+                    )
+                }
+                Err(e) => format!("{k} segments: {e}"),
+            },
+        )
+        .collect()
 }
 
 fn signed_inf(v: f64) -> &'static str {
@@ -270,6 +301,7 @@ mod tests {
                 "Emitted forms (each op with the opset it needs, for float32)",
                 "Example",
                 "Numeric notes",
+                "Fitted forms (over [-8, 8], default parameters, float32 constants)",
             ] {
                 assert!(text.contains(&format!("\n{s}\n")), "{} lacks {s}", k.id);
             }

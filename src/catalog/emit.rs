@@ -29,9 +29,12 @@ pub enum Form {
     Fused,
     /// A decomposition into basic ops.
     Primitive,
+    /// A piecewise-linear function fitted to the kind over a range (see [`super::fit`]).
+    Fitted,
 }
 
 impl Form {
+    /// The exact forms.
     pub const ALL: [Form; 2] = [Form::Fused, Form::Primitive];
 
     /// The name used on the command line and in JSON.
@@ -39,6 +42,7 @@ impl Form {
         match self {
             Form::Fused => "fused",
             Form::Primitive => "primitive",
+            Form::Fitted => "fitted",
         }
     }
 }
@@ -171,6 +175,8 @@ pub enum Unavailable {
     },
     #[error("{kind} has no fused op")]
     NoFusedOp { kind: &'static str },
+    #[error("{kind}: the fitted form is written from a fit over a range, not from the kind alone")]
+    NeedsFit { kind: &'static str },
     #[error("{kind}: the {form} form takes its parameters as scalars, not one value per channel")]
     PerChannel { kind: &'static str, form: Form },
     #[error(
@@ -401,6 +407,19 @@ impl<'c> Builder<'c> {
                 self.initializer(role, &dims, &mapped)
             }
         }
+    }
+
+    /// One value per channel of the site's parameters, as an initializer `{prefix}.c.{role}`:
+    /// shape `[]` when every channel has the same value, else the per-channel dims.
+    pub fn channel_values(&mut self, role: &str, values: &[f64]) -> String {
+        if values.iter().all(|v| v.to_bits() == values[0].to_bits()) {
+            return self.initializer(role, &[], &values[..1]);
+        }
+        let dims: Vec<i64> = match self.ctx.params.shape() {
+            Some(d) => d.iter().map(|&d| d as i64).collect(),
+            None => vec![values.len() as i64],
+        };
+        self.initializer(role, &dims, values)
     }
 
     fn initializer(&mut self, role: &str, dims: &[i64], values: &[f64]) -> String {

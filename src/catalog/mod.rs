@@ -14,6 +14,7 @@
 
 mod describe;
 pub mod emit;
+pub mod fit;
 mod identify;
 pub mod json;
 pub mod kind;

@@ -512,7 +512,7 @@ fn grid(lo: f64, hi: f64, breaks: &[f64]) -> Vec<f64> {
 }
 
 /// Golden-section search for the maximum of `g` on `[a, b]`: (value, at).
-fn golden_max(g: &dyn Fn(f64) -> f64, mut a: f64, mut b: f64) -> (f64, f64) {
+pub(crate) fn golden_max(g: &dyn Fn(f64) -> f64, mut a: f64, mut b: f64) -> (f64, f64) {
     const R: f64 = 0.618_033_988_749_894_9; // (sqrt 5 - 1) / 2
     let mut c = b - R * (b - a);
     let mut d = a + R * (b - a);

@@ -7,6 +7,7 @@ use anyhow::Result;
 use crate::audit::Conversion;
 use crate::files::open_regular;
 use crate::plan::profile::Profile;
+use crate::plan::ranges::FitRanges;
 use crate::plan::request::Request;
 
 #[derive(Debug, clap::Args)]
@@ -22,6 +23,15 @@ pub struct PlanArgs {
     /// Only these sites (ids from `actswap scan`; repeatable).
     #[arg(long = "site", value_name = "ID")]
     sites: Vec<String>,
+    /// The range fitted forms are fitted over where no input range is observed: LO,HI for
+    /// every kind, KIND=LO,HI for one (repeatable; default -8,8). audit and batch fit over each
+    /// site's observed input range widened by 25% of its width on each side.
+    #[arg(
+        long = "fit-range",
+        value_name = "[KIND=]LO,HI",
+        allow_hyphen_values = true
+    )]
+    fit_range: Vec<String>,
 }
 
 impl PlanArgs {
@@ -37,7 +47,8 @@ impl PlanArgs {
             open_regular(file, "target profile")?;
         }
         let profile = self.target.as_deref().map(Profile::load).transpose()?;
-        Conversion::new(requests, profile, self.sites.clone())
+        let ranges = FitRanges::declared(&self.fit_range)?;
+        Ok(Conversion::new(requests, profile, self.sites.clone())?.with_fit_ranges(ranges))
     }
 
     /// The profile file `--target` reads, when it names one.

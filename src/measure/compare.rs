@@ -27,6 +27,7 @@ use super::metrics::{DriftAccumulator, Tolerance, Top1Accumulator, top1_applies}
 use super::pairs::SitePair;
 use super::range::RangeCollector;
 use super::result::{CAUTION, DriftReport, LocalBasis, OutputDrift, SiteDrift, UnmatchedSite};
+use crate::catalog::fit::Fitted;
 use crate::catalog::substitute;
 use crate::onnx::{GraphKind, Model, ModelIndex};
 use crate::run::{self, NamedTensor, Sample, TractModel};
@@ -91,6 +92,7 @@ pub fn compare(
         .map(|p| Pair {
             a: &p.a,
             b: &p.b,
+            fit: p.fit.as_ref(),
             input: a.input_capture(&p.a),
             top: p.a.graph_index == 0,
         })
@@ -241,6 +243,8 @@ impl<'i, 'm> Side<'i, 'm> {
 struct Pair<'s> {
     a: &'s Site,
     b: &'s Site,
+    /// The fit `b` computes, when it is a fitted form.
+    fit: Option<&'s Fitted>,
     /// Whether the original site's input can be captured (the reason when not).
     input: Result<(), String>,
     /// Whether the site lives in the top-level graph (its output can be captured).
@@ -326,7 +330,7 @@ fn measure_range(p: &Pair, rec: &mut SiteDrift, values_a: &[Values]) {
         None => rec
             .notes
             .push("input range: no finite input value was seen".into()),
-        Some(r) => match worst_case(p.a, p.b, r.min, r.max) {
+        Some(r) => match worst_case(p, r.min, r.max) {
             Ok((value, at)) => {
                 rec.bound_over_range = Some(value);
                 rec.bound_at = Some(at);
@@ -336,8 +340,14 @@ fn measure_range(p: &Pair, rec: &mut SiteDrift, values_a: &[Values]) {
     }
 }
 
-/// The catalogue's worst-case |a - b| over [lo, hi], worst channel first; and where.
-fn worst_case(a: &Site, b: &Site, lo: f64, hi: f64) -> Result<(f64, f64), String> {
+/// The catalogue's worst-case |a - b| over [lo, hi], worst channel first (the fit's error, for a
+/// fitted form); and where.
+fn worst_case(p: &Pair, lo: f64, hi: f64) -> Result<(f64, f64), String> {
+    if let Some(fit) = p.fit {
+        let e = fit.error_over(lo, hi);
+        return Ok((e.value, e.at));
+    }
+    let (a, b) = (p.a, p.b);
     let (pa, pb) = match (&a.params, &b.params) {
         (Some(pa), Some(pb)) => (pa, pb),
         _ => return Err("a parameter is only known at run time".into()),

@@ -6,6 +6,7 @@
 //! the figures and [`result`] holds the result and its JSON schema.
 
 pub mod budget;
+pub mod calibrate;
 pub mod capture;
 pub mod compare;
 pub mod isolate;

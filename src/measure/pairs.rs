@@ -3,6 +3,7 @@
 use std::collections::{HashMap, HashSet};
 
 use super::result::UnmatchedSite;
+use crate::catalog::fit::Fitted;
 use crate::onnx::ModelIndex;
 use crate::scan::{self, Site};
 
@@ -11,6 +12,8 @@ use crate::scan::{self, Site};
 pub struct SitePair {
     pub a: Site,
     pub b: Site,
+    /// The fit `b` computes when it is a fitted form of `a`'s kind: bounds are the fit's.
+    pub fit: Option<Fitted>,
 }
 
 /// For two models compared as files: both are scanned and sites are matched by graph and output
@@ -36,6 +39,7 @@ pub fn by_output(
                 pairs.push(SitePair {
                     a: sa.clone(),
                     b: (*sb).clone(),
+                    fit: None,
                 });
             }
             None => unmatched.push(UnmatchedSite::of("a", sa)),

@@ -5,6 +5,7 @@ use std::borrow::Cow;
 use schemars::{JsonSchema, Schema, SchemaGenerator, json_schema};
 use serde::{Serialize, Serializer};
 
+use super::ranges::RangeSource;
 use super::{Action, Plan};
 use crate::catalog::NamedParams;
 use crate::catalog::substitute::ErrorBound;
@@ -59,7 +60,25 @@ pub enum ActionJson<'a> {
         rule: Option<&'static str>,
         /// Worst-case |error| over the real line against the site's own kind (0 when exact).
         error_bound: BoundJson,
+        /// The fit, for the fitted form.
+        #[serde(skip_serializing_if = "Option::is_none")]
+        fit: Option<FitJson>,
+        /// The forms weighed before this one and why each was passed over.
+        alternatives: &'a [String],
     },
+}
+
+/// A fitted form: its segments, the range it was fitted over and its error there and over the
+/// real line (the worst channel's).
+#[derive(Serialize, JsonSchema)]
+pub struct FitJson {
+    /// Segments between the outer knots (the two tails come on top).
+    pub segments: usize,
+    /// The fitting range [lo, hi].
+    pub range: [f64; 2],
+    pub range_source: RangeSource,
+    pub in_range: BoundJson,
+    pub over_reals: BoundJson,
 }
 
 /// The kind, parameters and form a site is rewritten to, with the ops written.
@@ -134,6 +153,14 @@ impl Plan {
                         },
                         rule: r.rule,
                         error_bound: BoundJson::from(&r.bound),
+                        fit: r.fit.as_deref().map(|(f, source)| FitJson {
+                            segments: f.segments,
+                            range: [f.range.lo, f.range.hi],
+                            range_source: *source,
+                            in_range: BoundJson::from(&f.bound.in_range),
+                            over_reals: BoundJson::from(&f.bound.over_reals),
+                        }),
+                        alternatives: &r.alternatives,
                     },
                 };
                 PlannedJson {

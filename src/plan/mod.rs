@@ -4,21 +4,30 @@
 //! model here, and the plan is shown first.
 //!
 //! With a profile, a site the target already runs is kept; otherwise exact forms come first
-//! (fused, primitive, in the order the profile prefers), then the approximation with the smallest
-//! worst-case error within the profile's allowance. A form whose ops need a higher opset than the
-//! model declares is never offered: the opset is not changed, and a model whose opset is above
-//! the target's gets that one reason for every site.
+//! (fused, primitive, in the order the profile prefers), then the substitution with the smallest
+//! worst-case error within the profile's allowance, then a fitted form with the fewest segments
+//! (up to the profile's `max_fit_segments`) whose error over the site's fitting range
+//! ([`ranges`]) is within the allowance. Each rewrite records the alternatives weighed before it.
+//! A form whose ops need a higher opset than the model declares is never offered: the opset is
+//! not changed, and a model whose opset is above the target's gets that one reason for every
+//! site.
 
 pub mod json;
 pub mod profile;
+pub mod ranges;
 pub mod request;
 
 use crate::catalog::emit::{EmitCtx, Emitted, Unavailable};
+use crate::catalog::fit::{self, Fitted};
 use crate::catalog::substitute::{self, ErrorBound};
 use crate::catalog::{Form, Kind, Params};
 use crate::scan::{Site, Spelling};
 use profile::{Prefer, Profile};
+use ranges::{FitRanges, NO_RANGES, RangeSource};
 use request::Request;
+
+/// The allowance a fitted form with no segment count meets when there is no target profile.
+pub const FIT_ALLOWANCE: f64 = 0.01;
 
 /// What happens to one site.
 #[derive(Debug, Clone)]
@@ -41,6 +50,10 @@ pub struct Replacement {
     pub rule: Option<&'static str>,
     /// Worst-case |error| over the real line against the site's own kind (0 for exact forms).
     pub bound: ErrorBound,
+    /// The fit, for the fitted form, and where its range came from.
+    pub fit: Option<Box<(Fitted, RangeSource)>>,
+    /// The forms weighed before this one and why each was passed over.
+    pub alternatives: Vec<String>,
     /// The form written for the site: it reads the site's input and writes its output; every
     /// new name starts with `<output>.<form>` (same kind) or `<output>.<kind>` (another kind).
     pub emitted: Emitted,
@@ -67,11 +80,13 @@ pub struct Plan {
     pub warnings: Vec<String>,
 }
 
-/// Where the plan's choices come from: `--to` requests, a target profile, or both.
+/// Where the plan's choices come from: `--to` requests, a target profile, or both; and the
+/// ranges fitted forms are fitted over.
 #[derive(Clone, Copy)]
 pub struct Policy<'a> {
     pub requests: &'a [Request],
     pub target: Option<&'a Profile>,
+    pub ranges: &'a FitRanges,
 }
 
 impl<'a> Policy<'a> {
@@ -80,6 +95,7 @@ impl<'a> Policy<'a> {
         Policy {
             requests,
             target: None,
+            ranges: &NO_RANGES,
         }
     }
 
@@ -88,7 +104,14 @@ impl<'a> Policy<'a> {
         Policy {
             requests: &[],
             target: Some(profile),
+            ranges: &NO_RANGES,
         }
+    }
+
+    /// True when a site may get a fitted form (a target, or a `fitted` request): its input
+    /// range is worth observing.
+    pub fn may_fit(&self) -> bool {
+        self.target.is_some() || self.requests.iter().any(|r| r.form == Some(Form::Fitted))
     }
 }
 
@@ -178,13 +201,15 @@ fn plan_site(site: &Site, policy: &Policy) -> Action {
             },
         };
     };
-    let replace = |c: Candidate, form: Form, emitted: Emitted| {
+    let replace = |c: Candidate, form: Form, emitted: Emitted, alternatives: Vec<String>| {
         Action::Rewrite(Replacement {
             kind: c.kind,
             params: c.params,
             form,
             rule: c.rule,
             bound: c.bound,
+            fit: None,
+            alternatives,
             emitted,
         })
     };
@@ -205,7 +230,24 @@ fn plan_site(site: &Site, policy: &Policy) -> Action {
                 reason: format!("not rewritable: {}", site.notes.join("; ")),
             };
         }
-        let Some(c) = candidates(kind, params, r.to).into_iter().next() else {
+        if r.form == Some(Form::Fitted) {
+            let allowance = target.map_or(FIT_ALLOWANCE, |p| p.max_approx_error);
+            let cap = target.map_or(fit::DEFAULT_MAX_SEGMENTS, |p| p.max_fit_segments);
+            return match fitted(site, params, policy.ranges, r.segments, allowance, cap) {
+                Ok((fitted, source, emitted)) => match refused(&emitted) {
+                    None => rewrite_fitted(site, params, fitted, source, emitted, Vec::new()),
+                    Some(op) => Action::Unserved {
+                        reason: format!("{}:fitted: {op} not accepted", kind.id),
+                    },
+                },
+                Err(reason) => Action::Unserved { reason },
+            };
+        }
+        // Only the kind asked for (the site's own when none): no other bound is needed.
+        let Some(c) = candidates(kind, params, Some(r.to.unwrap_or(kind)))
+            .into_iter()
+            .next()
+        else {
             return Action::Unserved {
                 reason: format!(
                     "the catalogue has no substitution from {} to {}",
@@ -227,7 +269,7 @@ fn plan_site(site: &Site, policy: &Policy) -> Action {
             }
             match emit(site, c.kind, &c.params, form) {
                 Ok(emitted) => match refused(&emitted) {
-                    None => return replace(c, form, emitted),
+                    None => return replace(c, form, emitted, reasons),
                     Some(op) => reasons.push(format!("{}:{form}: {op} not accepted", c.kind.id)),
                 },
                 Err(e) => reasons.push(format!("{}:{form}: {e}", c.kind.id)),
@@ -271,16 +313,78 @@ fn plan_site(site: &Site, policy: &Policy) -> Action {
         for &form in &exact_forms {
             match emit(site, c.kind, &c.params, form) {
                 Ok(emitted) => match refused(&emitted) {
-                    None => return replace(c, form, emitted),
+                    None => return replace(c, form, emitted, reasons),
                     Some(op) => reasons.push(format!("{}:{form}: {op} not accepted", c.kind.id)),
                 },
                 Err(e) => reasons.push(format!("{}:{form}: {e}", c.kind.id)),
             }
         }
     }
+    let cap = p.max_fit_segments;
+    match fitted(site, params, policy.ranges, None, p.max_approx_error, cap) {
+        Ok((fitted, source, emitted)) => match refused(&emitted) {
+            None => return rewrite_fitted(site, params, fitted, source, emitted, reasons),
+            Some(op) => reasons.push(format!("{}:fitted: {op} not accepted", kind.id)),
+        },
+        Err(e) => reasons.push(e),
+    }
     Action::Unserved {
         reason: reasons.join("; "),
     }
+}
+
+/// The fitted form of the site: `segments` segments, or the fewest (up to `cap`) within
+/// `allowance` over the site's fitting range; the fit, where its range came from, and the
+/// nodes.
+fn fitted(
+    site: &Site,
+    params: &Params,
+    ranges: &FitRanges,
+    segments: Option<usize>,
+    allowance: f64,
+    cap: usize,
+) -> Result<(Fitted, RangeSource, Emitted), String> {
+    let kind = site.kind;
+    let (range, source) = ranges.for_site(site);
+    let fitted = match segments {
+        Some(k) => fit::fit(kind, params, range, k, site.elem_type),
+        None => fit::smallest(kind, params, range, allowance, cap, site.elem_type),
+    }
+    .map_err(|e| format!("{}:fitted: {e}", kind.id))?;
+    let prefix = format!("{}.fitted", site.output);
+    let ctx = EmitCtx {
+        input: &site.input,
+        output: &site.output,
+        prefix: &prefix,
+        elem_type: site.elem_type,
+        opset: site.opset,
+        params,
+    };
+    let emitted = kind
+        .emit_fitted(&fitted, &ctx)
+        .map_err(|e| format!("{}:fitted: {e}", kind.id))?;
+    Ok((fitted, source, emitted))
+}
+
+/// The rewrite of a site to its fitted form; its bound is the fit's over the real line.
+fn rewrite_fitted(
+    site: &Site,
+    params: &Params,
+    fitted: Fitted,
+    source: RangeSource,
+    emitted: Emitted,
+    alternatives: Vec<String>,
+) -> Action {
+    Action::Rewrite(Replacement {
+        kind: site.kind,
+        params: params.clone(),
+        form: Form::Fitted,
+        rule: None,
+        bound: fitted.bound.over_reals,
+        fit: Some(Box::new((fitted, source))),
+        alternatives,
+        emitted,
+    })
 }
 
 /// Replacement kinds for a site of `kind` with `params`: its own kind first (exact), then the

@@ -8,6 +8,7 @@
 //! max_opset = 13            # optional: highest default-domain opset the target runs
 //! prefer = "keep"           # keep | fused | primitive: the form for sites the target rejects
 //! max_approx_error = 0.15   # worst-case |error| over the real line allowed for an approximation
+//! max_fit_segments = 16     # optional: most segments of a fitted form (default 32)
 //!
 //! [ops]                     # accepted ops, each with the opsets it runs at:
 //! Add = "*"                 # "*" any, ">=N", "<=N", "N-M"
@@ -215,6 +216,9 @@ pub struct Profile {
     /// Worst-case |error| over the real line allowed for an approximation (0: exact forms only).
     #[serde(default)]
     pub max_approx_error: f64,
+    /// Most segments a fitted form may have (its error is judged over the site's fitting range).
+    #[serde(default = "default_max_fit_segments")]
+    pub max_fit_segments: usize,
     /// Accepted ops by type (`domain:Op` outside the default domain); `*` for every other
     /// default-domain op.
     pub ops: BTreeMap<String, OpRule>,
@@ -223,6 +227,10 @@ pub struct Profile {
     pub budget: Budgets,
     #[serde(skip, default = "built_in")]
     pub origin: Origin,
+}
+
+fn default_max_fit_segments() -> usize {
+    crate::catalog::fit::DEFAULT_MAX_SEGMENTS
 }
 
 fn built_in() -> Origin {
@@ -303,6 +311,10 @@ impl Profile {
         })?;
         if p.max_approx_error.is_nan() || p.max_approx_error < 0.0 {
             bail!("profile {origin}: max_approx_error must be a number >= 0");
+        }
+        let most = crate::catalog::fit::MAX_SEGMENTS;
+        if !(1..=most).contains(&p.max_fit_segments) {
+            bail!("profile {origin}: max_fit_segments must be between 1 and {most}");
         }
         Ok(p)
     }

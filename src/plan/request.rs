@@ -1,10 +1,11 @@
 //! `--to KIND=FORM` requests: `silu=fused`, `gelu=gelu_tanh`, `swish=hard_swish:primitive`,
-//! `*=primitive`. The left side is a kind id or `*`; the right side a form, a substitute kind,
-//! or a substitute kind and a form.
+//! `*=primitive`, `swish=fitted`, `swish=fitted:16`. The left side is a kind id or `*`; the right
+//! side a form, a substitute kind, a substitute kind and a form, or the fitted form with an
+//! optional number of segments.
 
 use anyhow::{Result, bail};
 
-use crate::catalog::{self, Form, Kind};
+use crate::catalog::{self, Form, Kind, fit};
 
 /// One parsed `--to` request.
 #[derive(Debug, Clone)]
@@ -15,6 +16,8 @@ pub struct Request {
     pub to: Option<&'static Kind>,
     /// The form to emit; `None` picks fused where the model's opset has it, else primitive.
     pub form: Option<Form>,
+    /// Segments of a fitted form (`fitted:N`); `None` picks the fewest within the allowance.
+    pub segments: Option<usize>,
     /// The request as written.
     pub text: String,
 }
@@ -29,6 +32,15 @@ impl Request {
             "*" => None,
             id => Some(kind(id, text)?),
         };
+        if let Some(segments) = fitted(rhs.trim(), text)? {
+            return Ok(Request {
+                from,
+                to: None,
+                form: Some(Form::Fitted),
+                segments,
+                text: text.to_string(),
+            });
+        }
         let (to, form) = match rhs.trim().split_once(':') {
             Some((k, f)) => (Some(kind(k, text)?), Some(form(f, text)?)),
             None => match rhs.trim() {
@@ -42,6 +54,7 @@ impl Request {
             from,
             to,
             form,
+            segments: None,
             text: text.to_string(),
         })
     }
@@ -75,6 +88,24 @@ fn form(name: &str, text: &str) -> Result<Form> {
     match name.trim() {
         "fused" => Ok(Form::Fused),
         "primitive" => Ok(Form::Primitive),
+        "fitted" => bail!(
+            "--to '{text}': a fitted form approximates the site's own kind; write KIND=fitted"
+        ),
         other => bail!("--to '{text}': unknown form '{other}' (expected fused or primitive)"),
+    }
+}
+
+/// `fitted` -> `Some(None)`, `fitted:N` -> `Some(Some(N))`; anything else `None`.
+fn fitted(rhs: &str, text: &str) -> Result<Option<Option<usize>>> {
+    let Some(rest) = rhs.strip_prefix("fitted") else {
+        return Ok(None);
+    };
+    if rest.is_empty() {
+        return Ok(Some(None));
+    }
+    let max = fit::MAX_SEGMENTS;
+    match rest.strip_prefix(':').map(|n| n.trim().parse::<usize>()) {
+        Some(Ok(n)) if (1..=max).contains(&n) => Ok(Some(Some(n))),
+        _ => bail!("--to '{text}': expected fitted or fitted:N with N from 1 to {max} segments"),
     }
 }

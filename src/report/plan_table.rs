@@ -43,19 +43,55 @@ pub fn render(plan: &Plan) -> String {
                     } else {
                         format!("{}({})", t.kind.id, params.join(" "))
                     };
-                    let bound = if t.rule.is_none() {
-                        "exact".into()
+                    let over_reals = if t.bound.value.is_finite() && t.bound.at.is_infinite() {
+                        format!("{:.3e} as x -> {}", t.bound.value, t.bound.at)
                     } else if t.bound.value.is_finite() {
                         format!("{:.3e} at x={:.4}", t.bound.value, t.bound.at)
                     } else {
                         "unbounded".into()
                     };
-                    (
-                        "rewrite",
-                        format!("{kind}:{} ({})", t.form, t.ops().join(" ")),
-                        bound,
-                        t.rule.unwrap_or("").to_string(),
-                    )
+                    let mut why = t.rule.unwrap_or("").to_string();
+                    let (to, bound) = match t.fit.as_deref() {
+                        Some((fit, source)) => {
+                            let mut ops = t.ops();
+                            ops.sort();
+                            ops.dedup();
+                            why = format!(
+                                "fitted over the {} range {}",
+                                format!("{source:?}").to_lowercase(),
+                                fit.range
+                            );
+                            (
+                                format!(
+                                    "{kind}:fitted ({} segment{}; {})",
+                                    fit.segments,
+                                    if fit.segments == 1 { "" } else { "s" },
+                                    ops.join(" ")
+                                ),
+                                format!(
+                                    "{:.3e} in range, {over_reals} over the reals",
+                                    fit.bound.in_range.value
+                                ),
+                            )
+                        }
+                        None => (
+                            format!("{kind}:{} ({})", t.form, t.ops().join(" ")),
+                            if t.rule.is_none() {
+                                "exact".into()
+                            } else {
+                                over_reals
+                            },
+                        ),
+                    };
+                    if !t.alternatives.is_empty() {
+                        let passed = format!("passed over: {}", t.alternatives.join("; "));
+                        why = if why.is_empty() {
+                            passed
+                        } else {
+                            format!("{why}; {passed}")
+                        };
+                    }
+                    ("rewrite", to, bound, why)
                 }
             };
             vec![

@@ -165,7 +165,7 @@ pub fn counterparts(
                         params: Some(r.params.clone()),
                         spelling: match r.form {
                             Form::Fused => Spelling::Fused,
-                            Form::Primitive => Spelling::Decomposed,
+                            Form::Primitive | Form::Fitted => Spelling::Decomposed,
                         },
                         domain: None,
                         ops: r.ops(),

@@ -125,19 +125,15 @@ fn site_model(emitted: &Emitted, elem: DataType, shape: &[usize]) -> Vec<u8> {
 }
 
 fn emit(f: &Fitted, params: &Params, elem: DataType) -> Emitted {
-    f.kind
-        .emit_fitted(
-            f,
-            &EmitCtx {
-                input: "x",
-                output: "y",
-                prefix: "site.fitted",
-                elem_type: elem,
-                opset: 17,
-                params,
-            },
-        )
-        .unwrap()
+    f.emit(&EmitCtx {
+        input: "x",
+        output: "y",
+        prefix: "site.fitted",
+        elem_type: elem,
+        opset: 17,
+        params,
+    })
+    .unwrap()
 }
 
 fn run(bytes: &[u8], input: Tensor) -> Tensor {

@@ -29,7 +29,6 @@ use super::substitute::ErrorBound;
 use crate::onnx::proto::tensor_proto::DataType;
 
 pub use bound::FitBound;
-pub use write::write;
 
 /// The fitting range when nothing else gives one (`swap` without `--fit-range`).
 pub const DEFAULT_RANGE: FitRange = FitRange { lo: -8.0, hi: 8.0 };

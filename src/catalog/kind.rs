@@ -5,7 +5,6 @@
 //! its primitive form, and its documentation.
 
 use super::emit::{Builder, EmitCtx, Emitted, Form, NEWEST_OPSET, OpVersion, Unavailable};
-use super::fit::Fitted;
 use super::numeric::same_f32;
 use super::params::{Param, Params};
 use crate::onnx::attrs;
@@ -322,13 +321,6 @@ impl Kind {
             Form::Primitive => (self.primitive)(&mut b)?,
             Form::Fitted => return Err(Unavailable::NeedsFit { kind: self.id }),
         };
-        Ok(b.finish(&last))
-    }
-
-    /// Writes the fitted form `fitted` (a fit of this kind) for the site `ctx`.
-    pub fn emit_fitted(&self, fitted: &Fitted, ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
-        let mut b = Builder::new(ctx, self.id, self.params, Form::Fitted)?;
-        let last = super::fit::write(&mut b, fitted)?;
         Ok(b.finish(&last))
     }
 

@@ -360,8 +360,8 @@ fn fitted(
         opset: site.opset,
         params,
     };
-    let emitted = kind
-        .emit_fitted(&fitted, &ctx)
+    let emitted = fitted
+        .emit(&ctx)
         .map_err(|e| format!("{}:fitted: {e}", kind.id))?;
     Ok((fitted, source, emitted))
 }

@@ -8,11 +8,20 @@
 //! with slope 0 on every channel is left out. Constants are one value for all channels, or one
 //! per channel with the site's parameter dims.
 
-use super::super::emit::{Builder, Unavailable, ops};
+use super::super::emit::{Builder, EmitCtx, Emitted, Form, Unavailable, ops};
 use super::{Fitted, Pwl};
 
+impl Fitted {
+    /// Writes this fit for the site `ctx`.
+    pub fn emit(&self, ctx: &EmitCtx) -> Result<Emitted, Unavailable> {
+        let mut b = Builder::new(ctx, self.kind.id, self.kind.params, Form::Fitted)?;
+        let last = write(&mut b, self)?;
+        Ok(b.finish(&last))
+    }
+}
+
 /// Writes `fitted` for the builder's site; returns the tensor holding the result.
-pub fn write(b: &mut Builder, fitted: &Fitted) -> Result<String, Unavailable> {
+fn write(b: &mut Builder, fitted: &Fitted) -> Result<String, Unavailable> {
     let x = b.input();
     let k = fitted.segments;
     let per_channel =

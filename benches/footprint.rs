@@ -5,6 +5,8 @@
 //!
 //! Peak memory is the child's maximum resident set as the kernel accounts it (`wait4`), pages
 //! of the memory-mapped model included once touched. Each figure is the median over the runs.
+//! The kernel carries the parent's own peak into a child it starts, so the synthetic models are
+//! built by a process of their own (this binary run with `--make`) and this one stays small.
 //!
 //! Cases:
 //! - a weight-heavy model (48 blocks of a MatMul by a 1024 x 1024 weight and a SiLU, ~200 MB):
@@ -99,9 +101,26 @@ fn row(label: &str, u: Usage, base: Usage, base_label: &str) {
     );
 }
 
+/// Builds a synthetic model in a process of its own: `what` is `weights` or `nodes`.
+fn make(what: &str, path: &Path, nodes: usize) {
+    let mut cmd = Command::new(std::env::current_exe().expect("own path"));
+    cmd.args(["--make", what, path.to_str().unwrap(), &nodes.to_string()]);
+    run(&mut cmd, 0);
+}
+
+/// The `--make` child: writes the model `what` to `path`.
+fn made(what: &str, path: &Path, nodes: usize) {
+    match what {
+        "weights" => graphs::matmul_silu(path, 48, 1024),
+        _ => graphs::elementwise_blocks(nodes)
+            .save(path, &Default::default())
+            .unwrap(),
+    }
+}
+
 fn weight_heavy(dir: &Path, runs: usize) {
     let model = dir.join("weights.onnx");
-    graphs::matmul_silu(&model, 48, 1024);
+    make("weights", &model, 0);
     let converted = dir.join("weights.converted.onnx");
     run(
         &mut actswap(&[
@@ -157,9 +176,7 @@ fn weight_heavy(dir: &Path, runs: usize) {
 
 fn many_nodes(dir: &Path, runs: usize, nodes: usize) {
     let model = dir.join("nodes.onnx");
-    graphs::elementwise_blocks(nodes)
-        .save(&model, &Default::default())
-        .unwrap();
+    make("nodes", &model, nodes);
     let size = std::fs::metadata(&model).unwrap().len() as f64;
     println!("\nelement-wise graph: {nodes} nodes, {:.0} MB", mb(size));
     let m = model.to_str().unwrap();
@@ -201,6 +218,12 @@ fn main() {
     let args: Vec<String> = std::env::args().skip(1).collect();
     if args.first().map(String::as_str) == Some("--bare") {
         bare_harness(&args[1..].iter().map(PathBuf::from).collect::<Vec<_>>());
+        return;
+    }
+    if let [flag, what, path, nodes] = &args[..]
+        && flag == "--make"
+    {
+        made(what, Path::new(path), nodes.parse().expect("a node count"));
         return;
     }
     let runs: usize = args.iter().find_map(|a| a.parse().ok()).unwrap_or(3);

@@ -41,6 +41,15 @@ impl LiveTemp {
 
     /// Writes `bytes`, sets ordinary permissions (tempfile makes files private) and flushes to disk.
     pub fn write_all(&mut self, bytes: &[u8]) -> std::io::Result<()> {
+        self.write_with(|w| w.write_all(bytes))
+    }
+
+    /// Lets `write` fill the file through a buffered writer, sets ordinary permissions
+    /// (tempfile makes files private) and flushes to disk.
+    pub fn write_with(
+        &mut self,
+        write: impl FnOnce(&mut dyn Write) -> std::io::Result<()>,
+    ) -> std::io::Result<()> {
         let file = self
             .file
             .as_mut()
@@ -51,7 +60,10 @@ impl LiveTemp {
             file.as_file()
                 .set_permissions(std::fs::Permissions::from_mode(0o644))?;
         }
-        file.write_all(bytes)?;
+        let mut out = std::io::BufWriter::new(file.as_file_mut());
+        write(&mut out)?;
+        out.flush()?;
+        drop(out);
         file.as_file().sync_all()
     }
 

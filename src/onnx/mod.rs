@@ -6,6 +6,7 @@ pub mod builder;
 pub mod external;
 pub mod index;
 pub mod model;
+mod stream;
 pub mod summary;
 pub mod tensor;
 mod unknown;

@@ -8,7 +8,7 @@
 //! anything but a regular file, and brings external data along.
 
 use std::collections::BTreeSet;
-use std::io::Read;
+use std::io::{Read, Write};
 use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result, bail};
@@ -17,7 +17,7 @@ use prost::Message;
 
 use super::external;
 use super::proto::{ModelProto, StringStringEntryProto, TensorProto, tensor_proto::DataLocation};
-use super::{unknown, walk};
+use super::{stream, unknown, walk};
 use crate::files::temps::LiveTemp;
 use crate::files::{FileAccess, open::kind_of, open_regular};
 use crate::text::escape_path;
@@ -239,15 +239,34 @@ impl Model {
                 escape_path(out)
             );
         }
-        let bytes = if self.proto.encoded_len() as u64 > opts.proto_limit {
+        if self.proto.encoded_len() as u64 > opts.proto_limit {
             let data_name = external_data_name(out);
-            self.save_externalized(&out_dir, &data_name, opts)?
-        } else {
-            let bytes = self.encode_lossless()?;
-            self.copy_external_data(&out_dir)?;
-            bytes
-        };
-        write_atomic(out, &bytes)
+            let bytes = self.save_externalized(&out_dir, &data_name, opts)?;
+            return write_atomic(out, &bytes);
+        }
+        match self.lossless_bytes()? {
+            Some(bytes) => {
+                self.copy_external_data(&out_dir)?;
+                write_atomic(out, &bytes)
+            }
+            // Nothing to keep beyond what the schema knows: encoded straight into the file.
+            None => {
+                self.copy_external_data(&out_dir)?;
+                write_atomic_with(out, |w| stream::encode_into(&self.proto, w))
+            }
+        }
+    }
+
+    /// The bytes [`Model::encode_lossless`] gives when they differ from a plain encoding of the
+    /// model (the original bytes, or a source's unknown fields kept); `None` otherwise.
+    fn lossless_bytes(&self) -> Result<Option<Bytes>> {
+        match (&self.original, &self.source) {
+            (Some(b), _) => Ok(Some(b.clone())),
+            (None, Some(source)) if unknown::has_unknown_fields(source) => {
+                unknown::encode_keeping(source, &self.proto).map(Some)
+            }
+            _ => Ok(None),
+        }
     }
 
     /// Copies every external data file to `out_dir` unless it already is the model's folder.
@@ -358,6 +377,14 @@ fn parent_dir(path: &Path) -> PathBuf {
 /// Writes `bytes` to a temporary file beside `path`, flushes it, then renames it into place.
 /// Refuses to replace anything but a regular file (a FIFO, a device node or a folder stays).
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    write_atomic_with(path, |w| w.write_all(bytes))
+}
+
+/// [`write_atomic`] of what `write` writes through a buffered writer.
+fn write_atomic_with(
+    path: &Path,
+    write: impl FnOnce(&mut dyn Write) -> std::io::Result<()>,
+) -> Result<()> {
     if let Ok(meta) = std::fs::metadata(path)
         && !meta.is_file()
     {
@@ -368,7 +395,7 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
         );
     }
     let mut tmp = LiveTemp::new_in(&parent_dir(path))?;
-    tmp.write_all(bytes)
+    tmp.write_with(write)
         .with_context(|| format!("cannot write '{}'", escape_path(path)))?;
     tmp.persist(path)
         .with_context(|| format!("cannot write '{}'", escape_path(path)))

@@ -136,7 +136,7 @@ pub enum CatalogJson {
 
 impl CatalogJson {
     /// `kind` in full, or every kind when `None`.
-    pub fn of(kind: Option<&Kind>) -> CatalogJson {
+    pub fn of(kind: Option<&'static Kind>) -> CatalogJson {
         match kind {
             Some(k) => CatalogJson::One {
                 schema_version: SchemaVersion,

@@ -125,7 +125,7 @@ pub enum CatalogJson {
     One {
         schema_version: SchemaVersion,
         #[serde(flatten)]
-        kind: KindJson,
+        kind: Box<KindJson>,
     },
     /// `actswap catalog --json`.
     All {
@@ -140,7 +140,7 @@ impl CatalogJson {
         match kind {
             Some(k) => CatalogJson::One {
                 schema_version: SchemaVersion,
-                kind: catalog::json(k),
+                kind: Box::new(catalog::json(k)),
             },
             None => CatalogJson::All {
                 schema_version: SchemaVersion,

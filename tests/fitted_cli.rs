@@ -104,6 +104,68 @@ fn without_a_count_the_fewest_segments_within_the_allowance() {
 }
 
 #[test]
+fn swap_given_inputs_fits_over_the_ranges_audit_observes_on_them() {
+    let samples = ["--dim", "batch=1", "--samples", "2", "--seed", "3"];
+    let swap = json(&actswap(
+        &[
+            &[
+                "swap",
+                &orchard(),
+                "--dry-run",
+                "--json",
+                "--to",
+                "silu=fitted:8",
+            ][..],
+            &samples,
+        ]
+        .concat(),
+    ));
+    let audit = json(&actswap(
+        &[
+            &[
+                "audit",
+                &orchard(),
+                "--json",
+                "--no-latency",
+                "--to",
+                "silu=fitted:8",
+            ][..],
+            &samples,
+        ]
+        .concat(),
+    ));
+    let (s, a) = (
+        sites_of(&swap, "silu")[0],
+        sites_of(&audit["plan"], "silu")[0],
+    );
+    assert_eq!(s["fit"]["range_source"], "observed");
+    assert_eq!(s["fit"], a["fit"], "the same samples give the same fit");
+    // The range is the observed one widened by a quarter of its width on each side.
+    let r = &audit["drift"]["sites"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|d| d["id_a"] == s["site"])
+        .unwrap()["input_range"];
+    let (lo, hi) = (r["min"].as_f64().unwrap(), r["max"].as_f64().unwrap());
+    let pad = 0.25 * (hi - lo);
+    assert_eq!(s["fit"]["range"], serde_json::json!([lo - pad, hi + pad]));
+    // Without an input option, the default range.
+    let plain = json(&actswap(&[
+        "swap",
+        &orchard(),
+        "--dry-run",
+        "--json",
+        "--to",
+        "silu=fitted:8",
+    ]));
+    assert_eq!(
+        sites_of(&plain, "silu")[0]["fit"]["range_source"],
+        "default"
+    );
+}
+
+#[test]
 fn a_tight_target_falls_back_to_fitted_forms_over_observed_ranges() {
     let tmp = tempfile::tempdir().unwrap();
     let profile = tmp.path().join("tight.toml");

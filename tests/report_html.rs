@@ -437,3 +437,112 @@ fn caution_text(doc: &Html) -> String {
         .text()
         .collect()
 }
+
+/// SiLU, x·sigmoid(x) (Elfwing et al. 2017, arXiv:1702.03118), in f64.
+fn silu(x: f64) -> f64 {
+    x / (1.0 + (-x).exp())
+}
+
+/// `knot 3: x = -1.5, fitted = -0.27` -> (-1.5, -0.27).
+fn knot(tip: &str) -> (f64, f64) {
+    let (_, rest) = tip.split_once("x = ").unwrap();
+    let (x, y) = rest.split_once(", fitted = ").unwrap();
+    (x.parse().unwrap(), y.parse().unwrap())
+}
+
+#[test]
+fn a_fitted_site_is_plotted_with_its_knots_range_and_error() {
+    let tmp = tempfile::tempdir().unwrap();
+    let report = tmp.path().join("fitted.html");
+    let out = audit(&[
+        &sample("orchard-grader.onnx"),
+        "--to",
+        "silu=fitted:8",
+        "--dim",
+        "batch=1",
+        "--samples",
+        "2",
+        "--no-latency",
+        "--json",
+        "--report",
+        report.to_str().unwrap(),
+    ]);
+    assert!(
+        matches!(out.status.code(), Some(0 | 1)),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let json: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let html = std::fs::read_to_string(&report).unwrap();
+    let doc = Html::parse_document(&html);
+    assert_self_contained(&html, &doc);
+    assert_eq!(count(&doc, ".legend .key.knot"), 1);
+    assert_eq!(count(&doc, ".legend .key.fit-range"), 1);
+
+    let fitted: Vec<&Value> = json["plan"]["sites"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|s| s["to"]["form"] == "fitted")
+        .collect();
+    assert!(!fitted.is_empty(), "orchard-grader has a silu site");
+    let plots: Vec<ElementRef> = doc
+        .select(&sel("svg.plot-curves[data-form=\"fitted\"]"))
+        .collect();
+    for site in fitted {
+        let id = site["site"].as_str().unwrap();
+        let svg = *plots
+            .iter()
+            .find(|p| {
+                p.value()
+                    .attr("data-sites")
+                    .unwrap()
+                    .split(',')
+                    .any(|s| s == id)
+            })
+            .unwrap_or_else(|| panic!("no fitted plot for {id}"));
+        let fit = &site["fit"];
+        assert_eq!(data(svg, "segments"), 8.0);
+        assert_eq!(data(svg, "fit-lo"), fit["range"][0].as_f64().unwrap());
+        assert_eq!(data(svg, "fit-hi"), fit["range"][1].as_f64().unwrap());
+        let bound = fit["in_range"]["max_abs"].as_f64().unwrap();
+        assert_eq!(data(svg, "fit-bound"), bound);
+        // The figure to beat: hard-swish against SiLU, 3 / (1 + e^3) (Howard et al. 2019).
+        assert!(bound < 3.0 / (1.0 + 3f64.exp()));
+        // The fitting range shaded in both panels, the bound drawn once, one marker per knot.
+        assert_eq!(svg.select(&sel("rect.fit-range")).count(), 2);
+        assert_eq!(svg.select(&sel("line.fit-bound")).count(), 1);
+        let knots: Vec<(f64, f64)> = svg
+            .select(&sel("circle.knot title"))
+            .map(|t| knot(&t.inner_html()))
+            .collect();
+        assert_eq!(knots.len(), 9, "8 segments between 9 knots");
+        let (lo, hi) = (data(svg, "fit-lo"), data(svg, "fit-hi"));
+        for (x, y) in knots {
+            assert!(lo <= x && x <= hi, "knot {x} inside [{lo}, {hi}]");
+            assert!(
+                (y - silu(x)).abs() <= bound,
+                "knot ({x}, {y}) within the bound"
+            );
+        }
+        for class in ["curve-a", "curve-b", "curve-err"] {
+            let line = svg
+                .select(&sel(&format!("polyline.{class}")))
+                .next()
+                .unwrap();
+            assert_eq!(points(line).len(), CURVE_POINTS, "{class} of {id}");
+        }
+        // The marked worst case is the drift report's bound over the inputs seen.
+        let drift = json["drift"]["sites"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|s| s["id_a"] == id)
+            .unwrap();
+        assert_eq!(
+            data(svg, "worst-error"),
+            drift["bound_over_range"].as_f64().unwrap()
+        );
+        assert!(data(svg, "worst-error") <= bound);
+    }
+}

@@ -21,9 +21,11 @@ pub use summary::{
 
 use crate::measure::{self, CompareOptions, DriftReport, SitePair};
 use crate::onnx::{Model, ModelIndex};
+use crate::plan::ranges::FitRanges;
 use crate::plan::{Action, Plan};
 use crate::rewrite::{self, Applied};
-use crate::run;
+use crate::run::{self, Sample};
+use crate::scan::Site;
 
 /// One model scanned, planned, rewritten in memory, checked against its target and measured.
 pub struct Audit {
@@ -49,6 +51,25 @@ impl Audit {
     pub fn judgement(&self) -> Judgement {
         Judgement::of(Some(&self.plan), self.readiness.as_ref(), Some(&self.drift))
     }
+}
+
+/// The ranges fitted forms are fitted over: the declared ones, and, when a site may get a
+/// fitted form, each top-level site's input range observed by running the original model on
+/// `samples` (calibration).
+pub fn fit_ranges(
+    conversion: &Conversion,
+    index: &ModelIndex,
+    sites: &[Site],
+    samples: &[Sample],
+    memory_ceiling: u64,
+) -> Result<FitRanges> {
+    let mut ranges = conversion.fit_ranges().clone();
+    if conversion.may_fit() {
+        for (id, r) in measure::calibrate::observe(index, sites, samples, memory_ceiling)? {
+            ranges.observe(&id, r.min, r.max);
+        }
+    }
+    Ok(ranges)
 }
 
 /// Audits the model at `path`; the budget of `opts` holds the limits given by flags, the rest
@@ -77,14 +98,13 @@ pub fn audit(
         run::input_specs(&model.encode()).with_context(|| format!("'{}'", path.display()))?;
     let loaded = inputs.load(&specs)?;
     let sites = conversion.sites(&index, path)?;
-    let mut ranges = conversion.fit_ranges().clone();
-    if conversion.may_fit() {
-        let observed =
-            measure::calibrate::observe(&index, &sites, &loaded.samples, opts.memory_ceiling)?;
-        for (id, r) in observed {
-            ranges.observe(&id, r.min, r.max);
-        }
-    }
+    let ranges = fit_ranges(
+        conversion,
+        &index,
+        &sites,
+        &loaded.samples,
+        opts.memory_ceiling,
+    )?;
     let plan = conversion.plan_sites(sites, &index, &ranges);
     let (rewritten, applied) = rewrite::apply(&model, &index, &plan)?;
     let (budgets, budget_source) = conversion.budget(opts.budgets);

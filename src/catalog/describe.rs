@@ -223,25 +223,36 @@ pub fn describe(kind: &'static Kind) -> String {
 
 /// The fitted form's bound at each of [`fit::CATALOG_SEGMENTS`] over [`fit::DEFAULT_RANGE`].
 fn fitted_bounds(kind: &'static Kind) -> Vec<String> {
+    catalog_fits(kind)
+        .into_iter()
+        .map(|(k, bound)| match bound {
+            Ok(b) => {
+                let reals = if b.over_reals.value.is_finite() {
+                    format!("{:.3e}", b.over_reals.value)
+                } else {
+                    "unbounded".to_string()
+                };
+                format!(
+                    "{k} segments: max |error| {:.3e} in the range, {reals} over the real line",
+                    b.in_range.value
+                )
+            }
+            Err(e) => format!("{k} segments: {e}"),
+        })
+        .collect()
+}
+
+/// The bound of the kind's fitted form with each of [`fit::CATALOG_SEGMENTS`] segments over
+/// [`fit::DEFAULT_RANGE`], at the default parameters with float32 constants (or why there is
+/// no fitted form).
+pub fn catalog_fits(kind: &'static Kind) -> Vec<(usize, Result<fit::FitBound, fit::FitError>)> {
     let defaults = kind.defaults();
     fit::CATALOG_SEGMENTS
         .iter()
-        .map(
-            |&k| match fit::fit_channel(kind, &defaults, fit::DEFAULT_RANGE, k, DataType::Float) {
-                Ok((_, b)) => {
-                    let reals = if b.over_reals.value.is_finite() {
-                        format!("{:.3e}", b.over_reals.value)
-                    } else {
-                        "unbounded".to_string()
-                    };
-                    format!(
-                        "{k} segments: max |error| {:.3e} in the range, {reals} over the real line",
-                        b.in_range.value
-                    )
-                }
-                Err(e) => format!("{k} segments: {e}"),
-            },
-        )
+        .map(|&k| {
+            let fitted = fit::fit_channel(kind, &defaults, fit::DEFAULT_RANGE, k, DataType::Float);
+            (k, fitted.map(|(_, b)| b))
+        })
         .collect()
 }
 

@@ -171,20 +171,34 @@ impl Fitted {
     /// The worst channel's |error| over `[lo, hi]` (an observed range), computed like the
     /// fit's own bound.
     pub fn error_over(&self, lo: f64, hi: f64) -> ErrorBound {
-        let mut worst = ErrorBound { value: 0.0, at: lo };
-        for (pwl, p) in self.channels.iter().zip(&self.params) {
-            let f = |x: f64| self.kind.eval(x, p);
-            let e = match FitRange::new(lo, hi) {
-                Ok(range) => bound::of(&f, pwl, range, &(self.kind.breakpoints)(p)).in_range,
-                // One value seen: the error there.
-                Err(_) => ErrorBound {
-                    value: (f(lo) - pwl.eval(lo)).abs(),
-                    at: lo,
-                },
-            };
-            worst = worse(worst, e);
+        self.worst_channel_over(lo, hi).1
+    }
+
+    /// The channel with the largest |error| over `[lo, hi]` (the first of equals), and that
+    /// error.
+    pub fn worst_channel_over(&self, lo: f64, hi: f64) -> (usize, ErrorBound) {
+        let mut worst = (0, ErrorBound { value: 0.0, at: lo });
+        for c in 0..self.channels.len() {
+            let e = self.channel_error_over(c, lo, hi);
+            if is_worse(worst.1, e) {
+                worst = (c, e);
+            }
         }
         worst
+    }
+
+    /// Channel `c`'s |error| over `[lo, hi]`, computed like the fit's own bound.
+    pub fn channel_error_over(&self, c: usize, lo: f64, hi: f64) -> ErrorBound {
+        let (pwl, p) = (&self.channels[c], &self.params[c]);
+        let f = |x: f64| self.kind.eval(x, p);
+        match FitRange::new(lo, hi) {
+            Ok(range) => bound::of(&f, pwl, range, &(self.kind.breakpoints)(p)).in_range,
+            // One value seen: the error there.
+            Err(_) => ErrorBound {
+                value: (f(lo) - pwl.eval(lo)).abs(),
+                at: lo,
+            },
+        }
     }
 }
 
@@ -307,11 +321,12 @@ pub fn fit(
 }
 
 fn worse(a: ErrorBound, b: ErrorBound) -> ErrorBound {
-    if b.value > a.value || b.value.is_nan() {
-        b
-    } else {
-        a
-    }
+    if is_worse(a, b) { b } else { a }
+}
+
+/// True when `b` is a worse error than `a` (a NaN is the worst).
+fn is_worse(a: ErrorBound, b: ErrorBound) -> bool {
+    b.value > a.value || b.value.is_nan()
 }
 
 /// The fit with the fewest segments (at most `max_segments`) whose error over `range` is within

@@ -5,8 +5,9 @@ use std::borrow::Cow;
 use schemars::{JsonSchema, Schema, SchemaGenerator, json_schema};
 use serde::{Serialize, Serializer};
 
-use super::describe::{approximations, emitted_forms};
+use super::describe::{approximations, catalog_fits, emitted_forms};
 use super::emit::{OpNeed, min_opset};
+use super::fit;
 use super::kind::Kind;
 
 /// Machine-readable description of a kind. Emitted forms are for float32, at the lowest opset
@@ -25,6 +26,23 @@ pub struct KindJson {
     pub example: &'static str,
     pub numeric_notes: &'static str,
     pub approximations: Vec<ApproximationJson>,
+    /// The range the fitted forms below are fitted over, `[lo, hi]`.
+    pub fitted_range: [f64; 2],
+    /// The fitted form's bounds at 4, 8, 16 and 32 segments over `fitted_range`, at the
+    /// default parameters with float32 constants.
+    pub fitted: Vec<FittedJson>,
+}
+
+/// A fitted form's bounds at one segment count, or why the kind has no fitted form.
+#[derive(Serialize, JsonSchema)]
+pub struct FittedJson {
+    pub segments: usize,
+    /// Worst-case |error| inside the fitting range; null when unavailable.
+    pub in_range: Option<Unbounded>,
+    /// Worst-case |error| over the real line (tails included); null when unavailable.
+    pub over_reals: Option<Unbounded>,
+    /// Null, or why there is no fitted form.
+    pub unavailable: Option<String>,
 }
 
 /// A parameter and its ONNX default.
@@ -124,7 +142,7 @@ impl JsonSchema for Position {
 }
 
 /// The description of `kind` as JSON.
-pub fn json(kind: &Kind) -> KindJson {
+pub fn json(kind: &'static Kind) -> KindJson {
     KindJson {
         id: kind.id,
         title: kind.title,
@@ -180,6 +198,24 @@ pub fn json(kind: &Kind) -> KindJson {
                 at: Position(a.bound.at),
             })
             .collect(),
+        fitted_range: [fit::DEFAULT_RANGE.lo, fit::DEFAULT_RANGE.hi],
+        fitted: catalog_fits(kind)
+            .into_iter()
+            .map(|(segments, bound)| match bound {
+                Ok(b) => FittedJson {
+                    segments,
+                    in_range: Some(Unbounded(b.in_range.value)),
+                    over_reals: Some(Unbounded(b.over_reals.value)),
+                    unavailable: None,
+                },
+                Err(e) => FittedJson {
+                    segments,
+                    in_range: None,
+                    over_reals: None,
+                    unavailable: Some(e.to_string()),
+                },
+            })
+            .collect(),
     }
 }
 
@@ -190,7 +226,7 @@ mod tests {
     use super::*;
     use crate::catalog::{describe, get};
 
-    fn to_json(kind: &Kind) -> Value {
+    fn to_json(kind: &'static Kind) -> Value {
         serde_json::to_value(json(kind)).unwrap()
     }
 
@@ -212,7 +248,9 @@ mod tests {
                 "piecewise_linear",
                 "example",
                 "numeric_notes",
-                "approximations"
+                "approximations",
+                "fitted_range",
+                "fitted"
             ]
         );
         assert_eq!(v["params"][0]["name"], "beta");
@@ -236,6 +274,35 @@ mod tests {
         assert_eq!(emitted[1]["min_opset"], Value::Null);
         assert_eq!(emitted[3]["form"], "primitive");
         assert_eq!(emitted[3]["min_opset"], 7);
+    }
+
+    #[test]
+    fn fitted_bounds_match_the_text() {
+        let v = to_json(get("silu").unwrap());
+        assert_eq!(v["fitted_range"], serde_json::json!([-8.0, 8.0]));
+        let fitted = v["fitted"].as_array().unwrap();
+        let segments: Vec<u64> = fitted
+            .iter()
+            .map(|f| f["segments"].as_u64().unwrap())
+            .collect();
+        assert_eq!(segments, [4, 8, 16, 32]);
+        let text = describe(get("silu").unwrap());
+        for f in fitted {
+            let inside = f["in_range"].as_f64().unwrap();
+            let line = format!(
+                "{} segments: max |error| {inside:.3e} in the range",
+                f["segments"]
+            );
+            assert!(text.contains(&line), "{line}");
+            assert!(f["over_reals"].as_f64().unwrap() >= inside);
+            assert_eq!(f["unavailable"], Value::Null);
+        }
+        // Squared ReLU grows faster than any line: no asymptote, no fitted form.
+        let squared = to_json(get("squared_relu").unwrap());
+        for f in squared["fitted"].as_array().unwrap() {
+            assert_eq!(f["in_range"], Value::Null);
+            assert!(f["unavailable"].as_str().unwrap().contains("asymptote"));
+        }
     }
 
     #[test]

@@ -1,5 +1,6 @@
-//! Input options shared by the commands that run models (`drift`, `audit`, `batch`): samples from
-//! files, a folder, or seeded random data.
+//! Input options shared by the commands that run models (`drift`, `audit`, `batch`, and `swap`,
+//! which observes the ranges of fitted forms on them): samples from files, a folder, or seeded
+//! random data.
 //!
 //! Files (`--input`) and folders (`--inputs-dir`) follow the layouts of
 //! [`crate::run::inputs`]. Without either, samples are random: `--samples` samples from one
@@ -92,6 +93,18 @@ impl InputArgs {
             max_elements: self.max_elements,
             ignore_unused_dims,
         })
+    }
+
+    /// True when any option says where samples come from or how they are drawn (every one
+    /// but `--max-elements`, which has a default).
+    pub fn given(&self) -> bool {
+        !self.input.is_empty()
+            || self.inputs_dir.is_some()
+            || self.seed.is_some()
+            || self.dist.is_some()
+            || self.range.is_some()
+            || self.samples.is_some()
+            || !self.dim.is_empty()
     }
 
     /// The options in words, for reports.

@@ -64,7 +64,7 @@ enum Command {
     Audit(Box<audit::Args>),
     Batch(Box<batch::Args>),
     Scan(scan::Args),
-    Swap(swap::Args),
+    Swap(Box<swap::Args>),
     Drift(Box<drift::Args>),
     Targets(targets::Args),
     Catalog(catalog::Args),
@@ -114,7 +114,7 @@ fn run(cli: Cli) -> Result<ExitCode> {
     match cli.command {
         Command::Info(args) => info::run(args),
         Command::Scan(args) => scan::run(args),
-        Command::Swap(args) => swap::run(args),
+        Command::Swap(args) => swap::run(*args),
         Command::Targets(args) => targets::run(args),
         Command::Catalog(args) => catalog::run(args),
         Command::Audit(args) => audit::run(*args),

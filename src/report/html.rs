@@ -7,9 +7,9 @@
 //!
 //! Layout: title, the caution, an overview table when there is more than one model, then one
 //! section per model: facts and verdict, what is over budget, the site table, drift per site
-//! ([`drift_chart`]), latency ratios ([`latency_chart`]), one plot per swapped kind
-//! ([`swaps`], [`curve_plot`]) and the output table. A model that failed shows its error line
-//! instead.
+//! ([`drift_chart`]), latency ratios ([`latency_chart`]), one plot per swapped kind or fitted
+//! form ([`swaps`], [`curve_plot`]) and the output table. A model that failed shows its error
+//! line instead.
 
 mod bars;
 mod curve_plot;
@@ -25,8 +25,10 @@ mod tables;
 use std::fmt::Write;
 
 use crate::audit::{Audit, ModelSummary};
+use crate::catalog::fit::Fitted;
 use crate::measure::Budgets;
 use crate::measure::result::{CAUTION, SiteDrift};
+use crate::plan::{Action, Planned};
 use crate::report::drift_table::kind;
 use markup::{esc, fig, full, ratio};
 use swaps::Swap;
@@ -175,9 +177,17 @@ fn section(i: usize, s: &ModelSection) -> String {
         out.push_str(&svg);
         out.push_str("<figcaption>Median run time of the rewritten model (or isolated site) over the original's, measured in the same run; log scale. Latency varies between machines and runs. Sites left identical are not timed.</figcaption>\n</figure>\n");
     }
-    let swaps = swaps::swaps(&measured);
+    let with_fits: Vec<_> = rows
+        .iter()
+        .filter_map(|r| Some((r.drift?, r.planned.and_then(fit_of))))
+        .collect();
+    let swaps = swaps::swaps(&with_fits);
     if !swaps.is_empty() {
-        out.push_str("<h3>Swapped kinds</h3>\n<div class=\"legend\"><span><span class=\"key original\"></span>original</span><span><span class=\"key replacement\"></span>replacement</span><span><span class=\"key error\"></span>|original − replacement| (lower panel)</span><span><span class=\"key band\"></span>1st–99th percentile of the inputs seen</span></div>\n<div class=\"swaps\">\n");
+        out.push_str("<h3>Swapped kinds</h3>\n<div class=\"legend\"><span><span class=\"key original\"></span>original</span><span><span class=\"key replacement\"></span>replacement</span><span><span class=\"key error\"></span>|original − replacement| (lower panel)</span><span><span class=\"key band\"></span>1st–99th percentile of the inputs seen</span>");
+        if swaps.iter().any(|s| s.fit.is_some()) {
+            out.push_str("<span><span class=\"key fit-range\"></span>fitting range of a fitted form</span><span><span class=\"key knot\"></span>its knots</span>");
+        }
+        out.push_str("</div>\n<div class=\"swaps\">\n");
         for sw in &swaps {
             out.push_str(&swap(sw));
         }
@@ -303,14 +313,30 @@ fn budgets(b: &Budgets) -> String {
     }
 }
 
+/// The fitted form a planned site is replaced by, if any.
+fn fit_of(p: &Planned) -> Option<&Fitted> {
+    match &p.action {
+        Action::Rewrite(r) => r.fit.as_deref().map(|(f, _)| f),
+        _ => None,
+    }
+}
+
 /// One swapped kind: heading, plot and caption.
 fn swap(sw: &Swap) -> String {
     let s = sw.sites[0];
-    let heading = format!(
-        "{} → {}",
-        kind(s.kind_a, s.params_a.as_ref()),
-        kind(s.kind_b, s.params_b.as_ref())
-    );
+    let heading = match sw.fit {
+        Some(f) => format!(
+            "{} → fitted ({} segment{})",
+            kind(s.kind_a, s.params_a.as_ref()),
+            f.segments,
+            if f.segments == 1 { "" } else { "s" }
+        ),
+        None => format!(
+            "{} → {}",
+            kind(s.kind_a, s.params_a.as_ref()),
+            kind(s.kind_b, s.params_b.as_ref())
+        ),
+    };
     let ids: Vec<&str> = sw.sites.iter().map(|s| s.id_a.as_str()).collect();
     let mut out = format!(
         "<figure class=\"swap\">\n<h4>{}</h4>\n<div class=\"muted\">site{} {}</div>\n",
@@ -331,7 +357,16 @@ fn swap(sw: &Swap) -> String {
                 fig(c.worst.value),
                 fig(c.worst.at)
             );
-            if c.plotted != c.observed {
+            if let Some(f) = &c.fit {
+                let _ = write!(
+                    caption,
+                    " Fitted over {} to {} (shaded): max |error| {} there, {} over the real line. The plot reaches a tenth of that range beyond each end; dotted lines: the smallest and largest input seen; circles: the knots.",
+                    fig(f.range.lo),
+                    fig(f.range.hi),
+                    fig(f.bound.in_range.value),
+                    fig(f.bound.over_reals.value)
+                );
+            } else if c.plotted != c.observed {
                 let _ = write!(
                     caption,
                     " The inputs span (almost) a single value, so the plot widens to {} .. {} (dotted lines: the inputs seen).",
@@ -353,7 +388,8 @@ fn swap(sw: &Swap) -> String {
     out
 }
 
-/// `beta = 1.23 → none` for the plotted channel: the parameters of both kinds.
+/// `beta = 1.23 → none` for the plotted channel: the parameters of both kinds (of the one kind,
+/// for a fitted form).
 fn channel_params(c: &swaps::Curves) -> String {
     let side = |k: &crate::catalog::Kind, p: &[f64]| {
         if p.is_empty() {
@@ -368,6 +404,9 @@ fn channel_params(c: &swaps::Curves) -> String {
             format!("{} {}", k.id, ps.join(", "))
         }
     };
+    if c.fit.is_some() {
+        return side(c.kind_a, &c.params_a);
+    }
     format!(
         "{}; {}",
         side(c.kind_a, &c.params_a),

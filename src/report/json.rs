@@ -125,7 +125,7 @@ pub enum CatalogJson {
     One {
         schema_version: SchemaVersion,
         #[serde(flatten)]
-        kind: KindJson,
+        kind: Box<KindJson>,
     },
     /// `actswap catalog --json`.
     All {
@@ -136,11 +136,11 @@ pub enum CatalogJson {
 
 impl CatalogJson {
     /// `kind` in full, or every kind when `None`.
-    pub fn of(kind: Option<&Kind>) -> CatalogJson {
+    pub fn of(kind: Option<&'static Kind>) -> CatalogJson {
         match kind {
             Some(k) => CatalogJson::One {
                 schema_version: SchemaVersion,
-                kind: catalog::json(k),
+                kind: Box::new(catalog::json(k)),
             },
             None => CatalogJson::All {
                 schema_version: SchemaVersion,

@@ -1,11 +1,13 @@
 //! The plot of one swap: the original activation and its replacement over the observed input
 //! range (upper panel), their absolute difference beneath on the same x axis (lower panel), the
-//! 1st-99th percentile band of the inputs shaded, and the worst-case point marked.
+//! 1st-99th percentile band of the inputs shaded, and the worst-case point marked. A fitted
+//! form adds its fitting range (shaded beneath the band), its knots (markers on its curve) and
+//! its bound in the fitting range (a dashed level in the lower panel).
 
 use super::markup::{full, short};
 use super::scale::{Linear, minus};
 use super::svg::{Anchor, Svg};
-use super::swaps::Curves;
+use super::swaps::{Curves, FitCurve};
 
 const WIDTH: f64 = 560.0;
 const LEFT: f64 = 56.0;
@@ -26,13 +28,34 @@ pub fn render(c: &Curves, label: &str, sites: &str) -> String {
     let (lo, hi) = finite_extent(c.a.iter().chain(&c.b));
     let pad = 0.06 * (hi - lo).max(1e-12);
     let ys = Linear::new((lo - pad, hi + pad), (TOP.1, TOP.0));
-    let emax = finite_extent(c.err.iter().chain([&c.worst.value])).1;
+    let fit_bound = c.fit.as_ref().map(|f| f.bound.in_range.value);
+    let emax = finite_extent(c.err.iter().chain([&c.worst.value]).chain(&fit_bound)).1;
     let es = Linear::new(
         (0.0, if emax > 0.0 { emax * 1.12 } else { 1.0 }),
         (ERR.1, ERR.0),
     );
 
+    if let Some(f) = &c.fit {
+        svg.data("form", "fitted");
+        svg.data("segments", &f.pwl.segments().to_string());
+        svg.data("fit-lo", &full(f.range.lo));
+        svg.data("fit-hi", &full(f.range.hi));
+        svg.data("fit-bound", &full(f.bound.in_range.value));
+    }
     for (top, bottom) in [TOP, ERR] {
+        if let Some(f) = &c.fit {
+            let (lo, hi) = (xs.map(f.range.lo), xs.map(f.range.hi));
+            svg.rect(
+                (lo, top),
+                (hi - lo, bottom - top),
+                "fit-range",
+                Some(&format!(
+                    "fitting range: {} to {}",
+                    full(f.range.lo),
+                    full(f.range.hi)
+                )),
+            );
+        }
         let band = (
             xs.map(c.band.0.max(c.plotted.0)),
             xs.map(c.band.1.min(c.plotted.1)),
@@ -119,8 +142,41 @@ pub fn render(c: &Curves, label: &str, sites: &str) -> String {
     svg.polyline(&points(&ys, &c.a), "curve curve-a");
     svg.polyline(&points(&ys, &c.b), "curve curve-b");
     svg.polyline(&err_pts, "curve curve-err");
+    if let Some(f) = &c.fit {
+        mark_fit(&mut svg, f, &xs, &ys, &es);
+    }
     mark_worst(&mut svg, c, &xs, &ys, &es);
     svg.finish()
+}
+
+/// A fitted form's knots on its curve, and its bound in the fitting range as a level across
+/// that range in the lower panel.
+fn mark_fit(svg: &mut Svg, f: &FitCurve, xs: &Linear, ys: &Linear, es: &Linear) {
+    let b = f.bound.in_range.value;
+    if b.is_finite() {
+        let y = es.map(b);
+        let tip = format!(
+            "bound of the fit in its range: {} (x = {})",
+            full(b),
+            full(f.bound.in_range.at)
+        );
+        svg.line(
+            (xs.map(f.range.lo), y),
+            (xs.map(f.range.hi), y),
+            "fit-bound",
+        );
+        svg.text(
+            (xs.map(f.range.hi) - 4.0, y - 4.0),
+            Anchor::End,
+            "fit-bound-label",
+            &minus(&format!("bound {}", short(b))),
+            Some(&tip),
+        );
+    }
+    for (i, (x, y)) in f.knots().enumerate() {
+        let tip = format!("knot {}: x = {}, fitted = {}", i + 1, full(x), full(y));
+        svg.circle((xs.map(x), ys.map(y)), 3.2, "knot", Some(&tip));
+    }
 }
 
 /// The worst-case point: on the error curve, on both activations, and a line joining them.
@@ -135,10 +191,7 @@ fn mark_worst(svg: &mut Svg, c: &Curves, xs: &Linear, ys: &Linear, es: &Linear) 
         full(w.at)
     );
     let x = xs.map(w.at);
-    let (ya, yb) = (
-        c.kind_a.eval(w.at, &c.params_a),
-        c.kind_b.eval(w.at, &c.params_b),
-    );
+    let (ya, yb) = (c.kind_a.eval(w.at, &c.params_a), c.replacement(w.at));
     svg.line(
         (x, ys.map(ya).min(ys.map(yb))),
         (x, es.map(w.value)),

@@ -6,7 +6,7 @@ pub const CSS: &str = r#"
   --ink: #1e2430; --muted: #5f6b7a; --line: #d8dde4; --paper: #f4f3ef; --card: #ffffff;
   --original: #1f6fb2; --replacement: #e07b12; --error: #c2362b;
   --local: #2f5d8c; --propagated: #c9962a; --faster: #2e8f62; --slower: #c8553d;
-  --band: #eef1f6; --budget: #b03a2e;
+  --band: #eef1f6; --budget: #b03a2e; --fit-range: #fbf3e6;
 }
 * { box-sizing: border-box; }
 body {
@@ -74,6 +74,8 @@ figcaption { font-size: 12.5px; color: var(--muted); margin-top: 4px; }
 .key.replacement { height: 0; border-top: 3px dashed var(--replacement); border-radius: 0; }
 .key.error { background: rgba(194, 54, 43, 0.18); border-top: 2px solid var(--error); border-radius: 0; }
 .key.band { background: var(--band); border: 1px solid #d5dbe5; }
+.key.fit-range { background: var(--fit-range); border: 1px solid #ecd9b8; }
+.key.knot { width: 10px; height: 10px; border-radius: 50%; background: #fff; border: 2px solid var(--replacement); }
 .swaps { display: grid; grid-template-columns: repeat(auto-fill, minmax(500px, 1fr)); gap: 18px 22px; }
 .swap { border: 1px solid var(--line); border-radius: 8px; padding: 10px 12px; }
 .swap h4 { margin: 0 0 4px; font-size: 14px; }
@@ -82,6 +84,7 @@ svg .frame { fill: none; stroke: #b9c1cc; stroke-width: 1; }
 svg .grid { stroke: #e6e9ee; stroke-width: 1; }
 svg .axis { stroke: #8a94a3; stroke-width: 1.2; }
 svg .band { fill: var(--band); }
+svg .fit-range { fill: var(--fit-range); }
 svg .observed { stroke: #8a94a3; stroke-width: 1; stroke-dasharray: 2 3; }
 svg .tick { font-size: 11.5px; fill: #566170; }
 svg .axis-title, svg .axis-note { font-size: 11.5px; fill: #6b7583; }
@@ -105,5 +108,8 @@ svg .worst-line { stroke: var(--error); stroke-width: 1; stroke-dasharray: 3 3; 
 svg .dot-a { fill: var(--original); }
 svg .dot-b { fill: var(--replacement); }
 svg .worst-label { font-size: 11.5px; fill: var(--error); font-weight: 600; }
+svg .knot { fill: #fff; stroke: var(--replacement); stroke-width: 1.8; }
+svg .fit-bound { stroke: var(--error); stroke-width: 1; stroke-dasharray: 6 3; opacity: 0.7; }
+svg .fit-bound-label { font-size: 11px; fill: var(--error); }
 footer { color: var(--muted); font-size: 12px; text-align: center; margin-top: 8px; }
 "#;

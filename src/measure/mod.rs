@@ -5,6 +5,7 @@
 //! figures, [`isolate`] cuts a site out of its model, [`latency`] times plans, [`budget`] judges
 //! the figures and [`result`] holds the result and its JSON schema.
 
+pub mod branches;
 pub mod budget;
 pub mod calibrate;
 pub mod capture;

@@ -4,15 +4,16 @@
 //! The sites come as pairs (original, counterpart): from the plan and the applied rewrite in
 //! `audit`, from [`super::pairs::by_output`] when two files are compared. Each model runs once
 //! per sample with every pair's input and output requested as extra outputs; a site inside an If
-//! branch is captured by running the branch lifted into a model of its own
-//! ([`super::branches`]), on the samples where the If takes it. Per pair:
+//! branch is captured by running the branch lifted into a model of its own, on the samples where
+//! the If takes it, and a site in a Scan body of the main graph by a measuring copy that carries
+//! its values out of the Scan, every iteration stacked ([`super::subgraphs`]). Per pair:
 //! - **local drift**: the rewritten model's site, isolated ([`super::isolate`]), against the
 //!   original site, isolated, both fed the very tensor the original site received. Both sides go
 //!   through the same isolation and the same tract optimizer, so the difference is the swap's
 //!   own error; `isolation_max_abs` checks the isolated original against its value in the full
-//!   model. A site inside a Scan or Loop body or a local function is reported as not measured,
-//!   with the reason ([`super::branches::reach`]); a site in a branch the samples never take,
-//!   as not reached.
+//!   model. A site inside a Loop body, a local function, or a Scan body below a branch or
+//!   another body is reported as not measured, with the reason ([`super::subgraphs::reach`]); a
+//!   site in a branch the samples never take, as not reached.
 //! - **propagated drift**: the site's output tensor in the rewritten model against the original
 //!   model (upstream changes included), on the samples where both models reach it.
 //! - the observed input range and the catalogue's worst-case error of (kind_a, params_a) vs
@@ -22,7 +23,6 @@ use std::collections::{BTreeMap, BTreeSet};
 
 use anyhow::{Context, Result, ensure};
 
-use super::branches::{self, Captures};
 use super::budget::{self, Budgets, Offender, Scope};
 use super::capture::{self, Values, widen};
 use super::isolate::{self, Extract, InputDecl, Part};
@@ -31,6 +31,7 @@ use super::metrics::{DriftAccumulator, Tolerance, Top1Accumulator, top1_applies}
 use super::pairs::SitePair;
 use super::range::RangeCollector;
 use super::result::{CAUTION, DriftReport, LocalBasis, OutputDrift, SiteDrift, UnmatchedSite};
+use super::subgraphs::{self, Captures};
 use crate::catalog::fit::Fitted;
 use crate::catalog::substitute;
 use crate::onnx::{Model, ModelIndex};
@@ -94,8 +95,8 @@ pub fn compare(
     let reach: Vec<Result<(), String>> = pairs
         .iter()
         .map(|p| {
-            branches::reach(original, p.a.graph_index)
-                .and_then(|()| branches::reach(rewritten, p.b.graph_index))
+            subgraphs::reach(original, p.a.graph_index)
+                .and_then(|()| subgraphs::reach(rewritten, p.b.graph_index))
         })
         .collect();
     let mut asks_a: BTreeMap<usize, BTreeSet<String>> = BTreeMap::new();
@@ -110,7 +111,7 @@ pub fn compare(
             .insert(p.b.output.clone());
     }
     let capture = |side: &Side, asks, what| {
-        branches::capture(side.index, &side.tract, samples, asks, what, side.ceiling)
+        subgraphs::capture(side.index, &side.tract, samples, asks, what, side.ceiling)
     };
     let cap_a = capture(&a, asks_a, "original model")?;
     let cap_b = capture(&b, asks_b, "rewritten model")?;

@@ -5,7 +5,6 @@
 //! figures, [`isolate`] cuts a site out of its model, [`latency`] times plans, [`budget`] judges
 //! the figures and [`result`] holds the result and its JSON schema.
 
-pub mod branches;
 pub mod budget;
 pub mod calibrate;
 pub mod capture;
@@ -17,6 +16,7 @@ pub mod pairs;
 pub mod range;
 pub mod result;
 mod stats;
+pub mod subgraphs;
 
 pub use budget::{Budgets, DEFAULT_BUDGET, Offender, Scope};
 pub use compare::{CompareOptions, compare, compare_models};

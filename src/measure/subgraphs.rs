@@ -1,12 +1,19 @@
-//! Values computed inside If branches, so that sites there get drift like top-level sites.
+//! Values computed inside If branches and Scan bodies, so that sites there get drift like
+//! top-level sites.
 //!
-//! tract runs an If branch as a model of its own and keeps none of its values, so a branch that
+//! **If branches.** tract runs an If branch as a model of its own and keeps none of its values, so a branch that
 //! holds a measured site is lifted into a model of its own, in memory only: the branch's nodes and
 //! initializers, the enclosing graphs' initializers it reads, and every other tensor it reads from
 //! an enclosing graph as an input. It runs on the samples where the If took it, fed the values the
 //! enclosing graph computed on that sample; on the other samples the site is not reached. Branches
-//! nest to any depth (a branch's enclosing graph may itself be a lifted branch). Scan and Loop
-//! bodies and local functions are not lifted: [`reach`] says why.
+//! nest to any depth (a branch's enclosing graph may itself be a lifted branch).
+//!
+//! **Scan bodies of the main graph.** The main graph runs from a measuring copy, in memory only,
+//! whose Scan nodes carry each requested body value out as one more scan output: the values of
+//! every iteration stacked along a new leading axis, which element-wise sites measure like any
+//! tensor (per-channel parameters broadcast from the right). A Scan body inside another body or
+//! a branch, Loop bodies (tract 0.23.9 has no Loop) and local functions (tract does not inline
+//! them) are not captured: [`reach`] says why.
 
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 
@@ -14,15 +21,16 @@ use anyhow::{Context, Result, bail, ensure};
 
 use super::capture::{self, Values, widen};
 use super::isolate::InputDecl;
+use crate::onnx::builder;
 use crate::onnx::index::free_names;
-use crate::onnx::proto::{GraphProto, ModelProto, TensorProto};
-use crate::onnx::{GraphKind, ModelIndex};
+use crate::onnx::proto::{GraphProto, ModelProto, TensorProto, ValueInfoProto};
+use crate::onnx::{GraphKind, Model, ModelIndex};
 use crate::run::{self, NamedTensor, Sample, TractModel};
 
 /// Whether values of graph `g` can be captured: the main graph, or If branches all the way up;
 /// the reason when not.
-pub fn reach(index: &ModelIndex, g: usize) -> Result<(), String> {
-    let mut g = g;
+pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
+    let mut g = site_graph;
     loop {
         let graph = &index.graphs[g];
         match &graph.kind {
@@ -39,12 +47,20 @@ pub fn reach(index: &ModelIndex, g: usize) -> Result<(), String> {
                     .nodes
                     .get(graph.location.steps.last().map_or(usize::MAX, |s| s.0))
                     .map_or("", |n| n.op_type());
-                if op != "If" {
-                    return Err(format!(
-                        "the site is inside the {attribute} of {op} node '{node}', whose values are not captured (only If branches are)"
-                    ));
+                match op {
+                    "If" => g = parent,
+                    "Scan" if g == site_graph && parent == 0 => return Ok(()),
+                    "Scan" => {
+                        return Err(format!(
+                            "the site is inside the body of Scan node '{node}', which is not in the main graph; only If branches and Scan bodies of the main graph are captured"
+                        ));
+                    }
+                    _ => {
+                        return Err(format!(
+                            "the site is inside the {attribute} of {op} node '{node}', whose values are not captured (only If branches and Scan bodies are)"
+                        ));
+                    }
                 }
-                g = parent;
             }
         }
     }
@@ -53,7 +69,7 @@ pub fn reach(index: &ModelIndex, g: usize) -> Result<(), String> {
 /// The values of every requested graph, per sample.
 pub struct Captures {
     main: Vec<Values>,
-    /// Per lifted branch: per sample, its values where the If took the branch; or why not run.
+    /// Per lifted branch or Scan body: per sample, its values where it ran; or why not run.
     branches: HashMap<usize, Result<Vec<Option<Values>>, String>>,
 }
 
@@ -76,9 +92,10 @@ impl Captures {
     }
 }
 
-/// Runs `tract` (the model of `index`) on every sample, then every If branch with requested
-/// values, outermost first; `requests` are tensor names per graph index; `what` names the model in
-/// errors. An error of the main run is an error; a branch that cannot run gives its reason.
+/// Runs `tract` (the model of `index`, or its measuring copy when Scan body values are requested)
+/// on every sample, then every If branch with requested values, outermost first; `requests` are
+/// tensor names per graph index; `what` names the model in errors. An error of the main run is
+/// an error; a branch or body that cannot be captured gives its reason.
 pub fn capture(
     index: &ModelIndex,
     tract: &TractModel,
@@ -87,6 +104,15 @@ pub fn capture(
     what: &str,
     ceiling: u64,
 ) -> Result<Captures> {
+    let scan_bodies: Vec<usize> = requests
+        .keys()
+        .copied()
+        .filter(|&g| is_scan_body(index, g))
+        .collect();
+    let scans: Vec<(usize, BTreeSet<String>)> = scan_bodies
+        .into_iter()
+        .map(|g| (g, requests.remove(&g).unwrap_or_default()))
+        .collect();
     let mut lifts: BTreeMap<usize, Result<Lift, String>> = BTreeMap::new();
     let mut pending: BTreeSet<usize> = requests.keys().copied().filter(|&g| g != 0).collect();
     while let Some(g) = pending.pop_last() {
@@ -108,10 +134,34 @@ pub fn capture(
         .into_iter()
         .filter(|n| !inputs.contains(&n.as_str()))
         .collect();
+    let (main, scan_failure) = if scans.is_empty() {
+        (capture::run_samples(tract, samples, &extra, what)?, None)
+    } else {
+        match run_threaded(index, &scans, samples, &extra, what, ceiling) {
+            Ok(values) => (values, None),
+            Err(e) => (
+                capture::run_samples(tract, samples, &extra, what)?,
+                Some(format!("{e:#}")),
+            ),
+        }
+    };
     let mut captures = Captures {
-        main: capture::run_samples(tract, samples, &extra, what)?,
+        main,
         branches: HashMap::new(),
     };
+    for (g, asks) in &scans {
+        let values = match &scan_failure {
+            Some(why) => Err(format!(
+                "the measuring copy that carries Scan body values out failed: {why}"
+            )),
+            None => Ok(captures
+                .main
+                .iter()
+                .map(|v| Some(unstacked(v, asks)))
+                .collect()),
+        };
+        captures.branches.insert(*g, values);
+    }
     for (g, lift) in lifts {
         let values = lift.and_then(|l| {
             let parent = captures.at(l.parent)?;
@@ -251,7 +301,7 @@ impl Lift {
             functions: original.functions.clone(),
             ..Default::default()
         };
-        let model = crate::onnx::Model::from_proto(proto, index.model.dir().to_path_buf());
+        let model = Model::from_proto(proto, index.model.dir().to_path_buf());
         let tract = run::prepare(&model.encode(), Some(model.dir()))?.with_memory_ceiling(ceiling);
         let extra: Vec<String> = asks
             .iter()
@@ -265,4 +315,119 @@ impl Lift {
         }
         Ok(out)
     }
+}
+
+/// The suffix of a Scan body value carried out of its Scan, iterations stacked.
+const STACKED: &str = "|iterations";
+
+/// The main-graph name of body value `name`, iterations stacked.
+fn stacked(name: &str) -> String {
+    format!("{name}{STACKED}")
+}
+
+/// Runs the measuring copy that carries the `scans` body values out, requesting `extra` too.
+fn run_threaded(
+    index: &ModelIndex,
+    scans: &[(usize, BTreeSet<String>)],
+    samples: &[Sample],
+    extra: &[String],
+    what: &str,
+    ceiling: u64,
+) -> Result<Vec<Values>> {
+    let copy = thread_scans(index, scans)?;
+    let tract = run::prepare(&copy.encode(), Some(copy.dir()))?.with_memory_ceiling(ceiling);
+    let mut extra = extra.to_vec();
+    extra.extend(
+        scans
+            .iter()
+            .flat_map(|(_, asks)| asks.iter().map(|n| stacked(n))),
+    );
+    capture::run_samples(&tract, samples, &extra, what)
+}
+
+/// The body values `asks` of a run of the measuring copy, under their body names.
+fn unstacked(values: &Values, asks: &BTreeSet<String>) -> Values {
+    asks.iter()
+        .filter_map(|n| {
+            let t = values.get(&stacked(n))?;
+            Some((n.clone(), NamedTensor::new(n, t.tensor.clone())))
+        })
+        .collect()
+}
+
+/// Whether graph `g` is the body of a Scan node of the main graph.
+fn is_scan_body(index: &ModelIndex, g: usize) -> bool {
+    let graph = &index.graphs[g];
+    graph.parent == Some(0)
+        && graph
+            .location
+            .steps
+            .last()
+            .and_then(|&(n, _, _)| index.graphs[0].nodes.get(n))
+            .is_some_and(|n| n.op_type() == "Scan")
+}
+
+/// The name to read body value `name` from. tract reshapes a body output in place to stack it,
+/// and its other readers see the reshaped value; so a body output's producer is made to write
+/// `name|raw`, with an Identity back to `name` right after it, and `name|raw` is read.
+fn unhook_output(body: &mut GraphProto, name: &str) -> String {
+    let producer = body
+        .node
+        .iter()
+        .position(|n| n.output.iter().any(|o| o == name));
+    match producer {
+        Some(p) if body.output.iter().any(|o| o.name() == name) => {
+            let raw = format!("{name}|raw");
+            for o in body.node[p].output.iter_mut().filter(|o| *o == name) {
+                o.clone_from(&raw);
+            }
+            let restore = builder::node("Identity", &raw, &[&raw], &[name], vec![]);
+            body.node.insert(p + 1, restore);
+            raw
+        }
+        _ => name.to_string(),
+    }
+}
+
+/// A copy of the model whose Scan nodes carry the requested body values out as extra scan
+/// outputs (each through an Identity, so body inputs and outer values work too).
+fn thread_scans(index: &ModelIndex, scans: &[(usize, BTreeSet<String>)]) -> Result<Model> {
+    let mut proto = index.model.proto().clone();
+    let main = proto.graph.as_mut().context("the model has no graph")?;
+    for (g, asks) in scans {
+        let &(n, a, _) = index.graphs[*g]
+            .location
+            .steps
+            .last()
+            .context("no node holds the body")?;
+        let scan = &mut main.node[n];
+        let body = scan.attribute[a]
+            .g
+            .as_mut()
+            .context("the Scan has no body")?;
+        for name in asks {
+            let inner = format!("{name}|per-iteration");
+            let source = unhook_output(body, name);
+            body.node.push(builder::node(
+                "Identity",
+                &inner,
+                &[&source],
+                &[&inner],
+                vec![],
+            ));
+            body.output.push(ValueInfoProto {
+                name: Some(inner),
+                ..Default::default()
+            });
+        }
+        scan.output.extend(asks.iter().map(|n| stacked(n)));
+        for attr in scan
+            .attribute
+            .iter_mut()
+            .filter(|a| matches!(a.name(), "scan_output_axes" | "scan_output_directions"))
+        {
+            attr.ints.extend(std::iter::repeat_n(0, asks.len()));
+        }
+    }
+    Ok(Model::from_proto(proto, index.model.dir().to_path_buf()))
 }

@@ -116,7 +116,9 @@ pub fn capture(
     let mut lifts: BTreeMap<usize, Result<Lift, String>> = BTreeMap::new();
     let mut pending: BTreeSet<usize> = requests.keys().copied().filter(|&g| g != 0).collect();
     while let Some(g) = pending.pop_last() {
-        let lift = Lift::plan(index, g).map_err(|e| format!("{e:#}"));
+        let lift = Lift::plan(index, g)
+            .map_err(|e| format!("{e:#}"))
+            .and_then(|l| exposed(tract, &l).map(|()| l));
         if let Ok(l) = &lift {
             let asks = requests.entry(l.parent).or_default();
             asks.insert(l.cond.clone());
@@ -314,6 +316,25 @@ impl Lift {
             out[*s] = Some(v);
         }
         Ok(out)
+    }
+}
+
+/// Whether the main graph's run can give what `lift` reads from it (tract exposes every tensor
+/// a node computes, not every name a file may hold).
+fn exposed(tract: &TractModel, lift: &Lift) -> Result<(), String> {
+    if lift.parent != 0 {
+        return Ok(());
+    }
+    let known =
+        |n: &str| tract.outlets.contains_key(n) || tract.inputs().iter().any(|i| i.name == n);
+    match std::iter::once(&lift.cond)
+        .chain(&lift.inputs)
+        .find(|n| !known(n))
+    {
+        Some(n) => Err(format!(
+            "the branch reads '{n}', which the run of the main graph does not give"
+        )),
+        None => Ok(()),
     }
 }
 

@@ -1,10 +1,10 @@
 //! Values computed inside If branches and Scan bodies, so that sites there get drift like
 //! top-level sites.
 //!
-//! **If branches.** tract runs an If branch as a model of its own and keeps none of its values, so a branch that
-//! holds a measured site is lifted into a model of its own, in memory only: the branch's nodes and
-//! initializers, the enclosing graphs' initializers it reads, and every other tensor it reads from
-//! an enclosing graph as an input. It runs on the samples where the If took it, fed the values the
+//! **If branches.** tract runs an If branch as a model of its own and keeps none of its values,
+//! so a branch that holds a measured site is lifted into a model of its own, in memory only: the
+//! branch's nodes and initializers, the enclosing graphs' initializers it reads, and every other
+//! tensor it reads from an enclosing graph as an input. It runs on the samples where the If took it, fed the values the
 //! enclosing graph computed on that sample; on the other samples the site is not reached. Branches
 //! nest to any depth (a branch's enclosing graph may itself be a lifted branch).
 //!
@@ -27,8 +27,8 @@ use crate::onnx::proto::{GraphProto, ModelProto, TensorProto, ValueInfoProto};
 use crate::onnx::{GraphKind, Model, ModelIndex};
 use crate::run::{self, NamedTensor, Sample, TractModel};
 
-/// Whether values of graph `g` can be captured: the main graph, or If branches all the way up;
-/// the reason when not.
+/// Whether values of graph `site_graph` can be captured: the main graph, If branches all the way
+/// up, or a Scan body of the main graph; the reason when not.
 pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
     let mut g = site_graph;
     loop {
@@ -42,7 +42,9 @@ pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
                 ));
             }
             GraphKind::Subgraph { node, attribute } => {
-                let parent = graph.parent.expect("a subgraph has an enclosing graph");
+                let Some(parent) = graph.parent else {
+                    return Err(format!("{} has no enclosing graph", graph.path));
+                };
                 let op = index.graphs[parent]
                     .nodes
                     .get(graph.location.steps.last().map_or(usize::MAX, |s| s.0))

@@ -271,3 +271,48 @@ fn audit_errors_exit_2_with_one_line_and_write_nothing() {
     assert!(stderr(&out).contains("'batch'"), "{}", stderr(&out));
     assert!(!out_file.exists());
 }
+
+#[test]
+fn audit_measures_the_silu_inside_door_chimes_if_branch() {
+    let tmp = tempfile::tempdir().unwrap();
+    let m = sample_copy(tmp.path(), "door-chime-keywords.onnx");
+    // mean(mfcc) > 0 takes the then-branch, which holds the silu (sample-models/README.md).
+    let mfcc = ndarray::Array3::<f32>::from_shape_fn((1, 20, 49), |(_, c, t)| {
+        0.5 + 3.0 * ((c * 49 + t) as f32 * 0.37).sin()
+    });
+    let input = tmp.path().join("mfcc.npy");
+    ndarray_npy::write_npy(&input, &mfcc).unwrap();
+    let binding = format!("mfcc={}", input.display());
+    let args = [
+        "audit",
+        path(&m),
+        "--to",
+        "silu=hard_swish",
+        "--input",
+        &binding,
+        "--no-latency",
+        "--json",
+    ];
+    let out = actswap(&args);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let sites = v["drift"]["sites"].as_array().unwrap();
+    let silu = sites
+        .iter()
+        .find(|s| s["output"] == "branch.then.act")
+        .unwrap();
+    assert_eq!(silu["graph"], "main/branch.if.then_branch");
+    let local = silu["local"]["max_abs"].as_f64().unwrap();
+    let propagated = silu["propagated"]["max_abs"].as_f64().unwrap();
+    assert!(local > 0.0 && local <= HARD_SWISH_BOUND, "{local}");
+    // Nothing upstream of the branch changed: the propagated drift is the local drift.
+    assert!((propagated - local).abs() <= 1e-6, "{propagated} {local}");
+    // The else-branch relu is not reached on this input, and says so.
+    let relu = sites
+        .iter()
+        .find(|s| s["output"] == "branch.else.act")
+        .unwrap();
+    assert!(relu["local"].is_null(), "{relu}");
+    let notes = relu["notes"].to_string();
+    assert!(notes.contains("not reached on these samples"), "{notes}");
+}

@@ -3,19 +3,23 @@
 //!
 //! The sites come as pairs (original, counterpart): from the plan and the applied rewrite in
 //! `audit`, from [`super::pairs::by_output`] when two files are compared. Each model runs once
-//! per sample with every pair's input and output requested as extra outputs (top-level graph
-//! only). Per pair:
+//! per sample with every pair's input and output requested as extra outputs; a site inside an If
+//! branch is captured by running the branch lifted into a model of its own, on the samples where
+//! the If takes it, and a site in a Scan body of the main graph by a measuring copy that carries
+//! its values out of the Scan, every iteration stacked ([`super::subgraphs`]). Per pair:
 //! - **local drift**: the rewritten model's site, isolated ([`super::isolate`]), against the
 //!   original site, isolated, both fed the very tensor the original site received. Both sides go
 //!   through the same isolation and the same tract optimizer, so the difference is the swap's
 //!   own error; `isolation_max_abs` checks the isolated original against its value in the full
-//!   model. A site inside a subgraph is measured when its input is a top-level tensor; inside a
-//!   function, or with an input computed in a subgraph, it is reported as not measured, with
-//!   the reason.
+//!   model. A site inside a Loop body, a local function, or a Scan body below a branch or
+//!   another body is reported as not measured, with the reason ([`super::subgraphs::reach`]); a
+//!   site in a branch the samples never take, as not reached.
 //! - **propagated drift**: the site's output tensor in the rewritten model against the original
-//!   model (upstream changes included); top-level sites only.
+//!   model (upstream changes included), on the samples where both models reach it.
 //! - the observed input range and the catalogue's worst-case error of (kind_a, params_a) vs
 //!   (kind_b, params_b) over [min, max] (per-channel parameters: the worst channel).
+
+use std::collections::{BTreeMap, BTreeSet};
 
 use anyhow::{Context, Result, ensure};
 
@@ -27,9 +31,10 @@ use super::metrics::{DriftAccumulator, Tolerance, Top1Accumulator, top1_applies}
 use super::pairs::SitePair;
 use super::range::RangeCollector;
 use super::result::{CAUTION, DriftReport, LocalBasis, OutputDrift, SiteDrift, UnmatchedSite};
+use super::subgraphs::{self, Captures};
 use crate::catalog::fit::Fitted;
 use crate::catalog::substitute;
-use crate::onnx::{GraphKind, Model, ModelIndex};
+use crate::onnx::{Model, ModelIndex};
 use crate::run::{self, NamedTensor, Sample, TractModel};
 use crate::scan::Site;
 
@@ -87,43 +92,47 @@ pub fn compare(
     ensure!(!samples.is_empty(), "no input samples to compare on");
     let a = Side::load(original, "original model", opts.memory_ceiling)?;
     let b = Side::load(rewritten, "rewritten model", opts.memory_ceiling)?;
-    let pairs: Vec<Pair> = pairs
+    let reach: Vec<Result<(), String>> = pairs
         .iter()
-        .map(|p| Pair {
-            a: &p.a,
-            b: &p.b,
-            fit: p.fit.as_ref(),
-            input: a.input_capture(&p.a),
-            top: p.a.graph_index == 0,
+        .map(|p| {
+            subgraphs::reach(original, p.a.graph_index)
+                .and_then(|()| subgraphs::reach(rewritten, p.b.graph_index))
         })
         .collect();
-
-    let mut extra_a = Vec::new();
-    let mut extra_b = Vec::new();
-    for p in &pairs {
-        if p.input.is_ok() && !a.is_input(&p.a.input) {
-            extra_a.push(p.a.input.clone());
-        }
-        if p.top {
-            extra_a.push(p.a.output.clone());
-            extra_b.push(p.b.output.clone());
-        }
+    let mut asks_a: BTreeMap<usize, BTreeSet<String>> = BTreeMap::new();
+    let mut asks_b: BTreeMap<usize, BTreeSet<String>> = BTreeMap::new();
+    for (p, _) in pairs.iter().zip(&reach).filter(|(_, r)| r.is_ok()) {
+        let asks = asks_a.entry(p.a.graph_index).or_default();
+        asks.insert(p.a.input.clone());
+        asks.insert(p.a.output.clone());
+        asks_b
+            .entry(p.b.graph_index)
+            .or_default()
+            .insert(p.b.output.clone());
     }
-    let values_a = capture::run_samples(&a.tract, samples, &extra_a, "original model")?;
-    let values_b = capture::run_samples(&b.tract, samples, &extra_b, "rewritten model")?;
+    let capture = |side: &Side, asks, what| {
+        subgraphs::capture(side.index, &side.tract, samples, asks, what, side.ceiling)
+    };
+    let cap_a = capture(&a, asks_a, "original model")?;
+    let cap_b = capture(&b, asks_b, "rewritten model")?;
+    let pairs: Vec<Pair> = pairs
+        .iter()
+        .zip(reach)
+        .map(|(p, reach)| Pair::new(p, reach, &cap_a, &cap_b))
+        .collect();
 
     let mut sites: Vec<SiteDrift> = pairs.iter().map(Pair::record).collect();
     for (p, rec) in pairs.iter().zip(sites.iter_mut()) {
-        measure_propagated(p, rec, &values_a, &values_b, opts.tolerance);
-        measure_range(p, rec, &values_a);
+        measure_propagated(p, rec, opts.tolerance);
+        measure_range(p, rec);
     }
-    let isolated = measure_local(&a, &b, &pairs, &mut sites, &values_a, opts.tolerance);
-    let outputs = measure_outputs(&a, &b, &values_a, &values_b, opts.tolerance);
+    let isolated = measure_local(&a, &b, &pairs, &mut sites, opts.tolerance);
+    let outputs = measure_outputs(&a, &b, cap_a.main(), cap_b.main(), opts.tolerance);
     let latency = match opts.latency {
         Some(lat) => {
             for ((p, iso), rec) in pairs.iter().zip(&isolated).zip(sites.iter_mut()) {
                 if let Some(iso) = iso.as_ref().filter(|i| !i.identical) {
-                    match site_latency(&a, &b, p, iso, &values_a[0], lat) {
+                    match site_latency(&a, &b, p, iso, lat) {
                         Ok(l) => rec.latency = Some(l),
                         Err(e) => rec
                             .notes
@@ -200,68 +209,63 @@ impl<'i, 'm> Side<'i, 'm> {
             ceiling,
         })
     }
-
-    fn is_input(&self, name: &str) -> bool {
-        self.tract.inputs().iter().any(|i| i.name == name)
-    }
-
-    /// Whether `site`'s input can be captured from a top-level run; the reason when not.
-    fn input_capture(&self, site: &Site) -> Result<(), String> {
-        let mut g = site.graph_index;
-        loop {
-            let graph = &self.index.graphs[g];
-            if let GraphKind::Function { .. } = graph.kind {
-                return Err(format!(
-                    "the site is inside {}, whose values are not captured",
-                    graph.path
-                ));
-            }
-            let defined = graph.producer(&site.input).is_some()
-                || graph.is_input(&site.input)
-                || graph.initializer(&site.input).is_some();
-            match graph.parent {
-                None if defined => return Ok(()),
-                None => {
-                    return Err(format!(
-                        "its input '{}' is not a top-level tensor",
-                        site.input
-                    ));
-                }
-                Some(_) if defined => {
-                    return Err(format!(
-                        "its input is computed inside {}; only top-level values are captured",
-                        graph.path
-                    ));
-                }
-                Some(p) => g = p,
-            }
-        }
-    }
 }
 
-/// A site of the original model and its counterpart in the rewritten one.
-struct Pair<'s> {
+/// A site of the original model and its counterpart in the rewritten one, with the values
+/// captured in their graphs.
+struct Pair<'s, 'v> {
     a: &'s Site,
     b: &'s Site,
     /// The fit `b` computes, when it is a fitted form.
     fit: Option<&'s Fitted>,
-    /// Whether the original site's input can be captured (the reason when not).
-    input: Result<(), String>,
-    /// Whether the site lives in the top-level graph (its output can be captured).
-    top: bool,
+    /// Per sample, the values of each site's graph where it ran; the reason when not captured.
+    seen: Result<Seen<'v>, String>,
 }
 
-impl Pair<'_> {
+/// The values of a pair's graphs per sample (`None`: the sample did not reach the graph).
+struct Seen<'v> {
+    a: Vec<Option<&'v Values>>,
+    b: Vec<Option<&'v Values>>,
+}
+
+impl<'s, 'v> Pair<'s, 'v> {
+    fn new(
+        p: &'s SitePair,
+        reach: Result<(), String>,
+        cap_a: &'v Captures,
+        cap_b: &'v Captures,
+    ) -> Pair<'s, 'v> {
+        let seen = reach.and_then(|()| {
+            Ok(Seen {
+                a: cap_a.at(p.a.graph_index)?,
+                b: cap_b.at(p.b.graph_index)?,
+            })
+        });
+        Pair {
+            a: &p.a,
+            b: &p.b,
+            fit: p.fit.as_ref(),
+            seen,
+        }
+    }
+
+    /// The original model's values on the samples that reached the site.
+    fn reached_a(&self) -> Vec<&'v Values> {
+        match &self.seen {
+            Ok(seen) => seen.a.iter().flatten().copied().collect(),
+            Err(_) => Vec::new(),
+        }
+    }
+
     fn record(&self) -> SiteDrift {
         let mut notes = Vec::new();
-        if let Err(why) = &self.input {
-            notes.push(format!("local drift not measured: {why}"));
-        }
-        if !self.top {
-            notes.push(format!(
-                "propagated drift not measured: the site lives in {}",
+        match &self.seen {
+            Err(why) => notes.push(format!("drift not measured: {why}")),
+            Ok(_) if self.reached_a().is_empty() => notes.push(format!(
+                "drift not measured: not reached on these samples ({} did not run)",
                 self.a.graph
-            ));
+            )),
+            Ok(_) => {}
         }
         SiteDrift {
             id_a: self.a.id.clone(),
@@ -287,31 +291,41 @@ impl Pair<'_> {
     }
 }
 
-fn measure_propagated(
-    p: &Pair,
-    rec: &mut SiteDrift,
-    values_a: &[Values],
-    values_b: &[Values],
-    tol: Tolerance,
-) {
-    if !p.top {
-        return;
-    }
+/// The site's output in the rewritten model against the original, on the samples where both
+/// models reach it.
+fn measure_propagated(p: &Pair, rec: &mut SiteDrift, tol: Tolerance) {
+    let Ok(seen) = &p.seen else { return };
     let mut acc = DriftAccumulator::new(tol);
-    let measured: Result<()> = values_a
-        .iter()
-        .zip(values_b)
-        .try_for_each(|(va, vb)| acc.add(&widen(&va[&p.a.output])?, &widen(&vb[&p.b.output])?));
+    let (mut both, mut one) = (0, 0);
+    let measured: Result<()> = seen.a.iter().zip(&seen.b).try_for_each(|(va, vb)| {
+        match (va, vb) {
+            (Some(va), Some(vb)) => {
+                both += 1;
+                acc.add(&widen(&va[&p.a.output])?, &widen(&vb[&p.b.output])?)?;
+            }
+            (None, None) => {}
+            _ => one += 1,
+        }
+        Ok(())
+    });
+    if one > 0 {
+        rec.notes.push(format!(
+            "{} ran in only one of the two models on {one} sample(s): propagated drift leaves those out",
+            p.a.graph
+        ));
+    }
     match measured {
-        Ok(()) => rec.propagated = Some(acc.finish()),
+        Ok(()) if both > 0 => rec.propagated = Some(acc.finish()),
+        Ok(()) => {}
         Err(e) => rec
             .notes
             .push(format!("propagated drift not measured: {}", flat(&e))),
     }
 }
 
-fn measure_range(p: &Pair, rec: &mut SiteDrift, values_a: &[Values]) {
-    if p.input.is_err() {
+fn measure_range(p: &Pair, rec: &mut SiteDrift) {
+    let values_a = p.reached_a();
+    if values_a.is_empty() {
         return;
     }
     let mut range = RangeCollector::default();
@@ -376,12 +390,12 @@ fn measure_local(
     b: &Side,
     pairs: &[Pair],
     sites: &mut [SiteDrift],
-    values_a: &[Values],
     tol: Tolerance,
 ) -> Vec<Option<Isolated>> {
     let mut isolated: Vec<Option<Isolated>> = Vec::with_capacity(pairs.len());
     for (p, rec) in pairs.iter().zip(sites.iter_mut()) {
-        let iso = if p.input.is_err() {
+        let values_a = p.reached_a();
+        let iso = if values_a.is_empty() {
             None
         } else if p.a.input != p.b.input {
             rec.notes.push(format!(
@@ -394,8 +408,7 @@ fn measure_local(
                 let decl = InputDecl::of(values_a.iter().map(|v| &v[&p.a.input].tensor))?;
                 let ext_a = isolate::extract(a.index, p.a).context("original model")?;
                 let ext_b = isolate::extract(b.index, p.b).context("rewritten model")?;
-                let identical = p.top
-                    && ext_a.nodes == ext_b.nodes
+                let identical = ext_a.nodes == ext_b.nodes
                     && ext_a.initializers == ext_b.initializers
                     && a.model.proto().opset_import == b.model.proto().opset_import;
                 Ok(Isolated {
@@ -418,7 +431,7 @@ fn measure_local(
     for ((p, iso), rec) in pairs.iter().zip(&isolated).zip(sites.iter_mut()) {
         if iso.as_ref().is_some_and(|i| i.identical) {
             let mut same = DriftAccumulator::new(tol);
-            let measured: Result<()> = values_a.iter().try_for_each(|v| {
+            let measured: Result<()> = p.reached_a().iter().try_for_each(|v| {
                 let x = widen(&v[&p.a.output])?;
                 same.add(&x, &x)
             });
@@ -433,76 +446,73 @@ fn measure_local(
             }
         }
     }
-    let parts = |b_side: bool| -> Vec<Part> {
-        isolated
-            .iter()
-            .flatten()
-            .filter(|iso| !iso.identical)
-            .map(|iso| Part {
-                extract: if b_side { &iso.ext_b } else { &iso.ext_a },
-                decl: &iso.decl,
-                prefix: &iso.prefix,
-            })
-            .collect()
-    };
-    let (parts_a, parts_b) = (parts(false), parts(true));
-    if parts_a.is_empty() {
-        return isolated;
+    // One isolated model per graph: the sites of a graph are reached on the same samples.
+    let mut groups: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
+    for (i, (p, iso)) in pairs.iter().zip(&isolated).enumerate() {
+        if iso.as_ref().is_some_and(|i| !i.identical) {
+            groups.entry(p.a.graph_index).or_default().push(i);
+        }
     }
-    let samples: Vec<Sample> = values_a
-        .iter()
-        .map(|v| {
-            parts_a
+    for members in groups.values() {
+        let (head, iso) = (&pairs[members[0]], |i: usize| {
+            isolated[i].as_ref().expect("grouped sites are isolated")
+        });
+        let parts = |b_side: bool| -> Vec<Part> {
+            members
                 .iter()
-                .map(|part| {
-                    NamedTensor::new(part.input_name(), v[&part.extract.input].tensor.clone())
+                .map(|&i| Part {
+                    extract: if b_side { &iso(i).ext_b } else { &iso(i).ext_a },
+                    decl: &iso(i).decl,
+                    prefix: &iso(i).prefix,
                 })
                 .collect()
-        })
-        .collect();
-    let run_isolated = |side: &Side, parts: &[Part], what: &str| -> Result<Vec<Values>> {
-        let model = isolate::build(side.model, parts);
-        let tract = run::prepare(&model.encode(), Some(model.dir()))
-            .context(what.to_string())?
-            .with_memory_ceiling(side.ceiling);
-        capture::run_samples(&tract, &samples, &[], what)
-    };
-    let runs = run_isolated(a, &parts_a, "isolated original sites")
-        .and_then(|ra| Ok((ra, run_isolated(b, &parts_b, "isolated new sites")?)));
-    let (out_a, out_b) = match runs {
-        Ok(r) => r,
-        Err(e) => {
-            for (iso, rec) in isolated.iter().zip(sites.iter_mut()) {
-                if iso.as_ref().is_some_and(|i| !i.identical) {
-                    rec.notes
+        };
+        let (parts_a, parts_b) = (parts(false), parts(true));
+        let reached = head.reached_a();
+        let samples: Vec<Sample> = reached
+            .iter()
+            .map(|v| {
+                parts_a
+                    .iter()
+                    .map(|part| {
+                        NamedTensor::new(part.input_name(), v[&part.extract.input].tensor.clone())
+                    })
+                    .collect()
+            })
+            .collect();
+        let run_isolated = |side: &Side, parts: &[Part], what: &str| -> Result<Vec<Values>> {
+            let model = isolate::build(side.model, parts);
+            let tract = run::prepare(&model.encode(), Some(model.dir()))
+                .context(what.to_string())?
+                .with_memory_ceiling(side.ceiling);
+            capture::run_samples(&tract, &samples, &[], what)
+        };
+        let runs = run_isolated(a, &parts_a, "isolated original sites")
+            .and_then(|ra| Ok((ra, run_isolated(b, &parts_b, "isolated new sites")?)));
+        let (out_a, out_b) = match runs {
+            Ok(r) => r,
+            Err(e) => {
+                for &i in members {
+                    sites[i]
+                        .notes
                         .push(format!("local drift not measured: {}", flat(&e)));
                 }
+                continue;
             }
-            return isolated;
-        }
-    };
-    let mut k = 0;
-    for ((p, iso), rec) in pairs.iter().zip(&isolated).zip(sites.iter_mut()) {
-        if iso.as_ref().is_none_or(|i| i.identical) {
-            continue;
-        }
-        let (pa, pb) = (&parts_a[k], &parts_b[k]);
-        k += 1;
-        let mut local = DriftAccumulator::new(tol);
-        let mut check = DriftAccumulator::new(tol);
-        let measured: Result<()> = (0..values_a.len()).try_for_each(|s| {
-            let ia = widen(&out_a[s][&pa.output_name()])?;
-            local.add(&ia, &widen(&out_b[s][&pb.output_name()])?)?;
-            if p.top {
-                check.add(&widen(&values_a[s][&p.a.output])?, &ia)?;
-            }
-            Ok(())
-        });
-        match measured {
-            Ok(()) => {
-                rec.local = Some(local.finish());
-                rec.local_basis = Some(LocalBasis::Isolated);
-                if p.top {
+        };
+        for ((&i, pa), pb) in members.iter().zip(&parts_a).zip(&parts_b) {
+            let (p, rec) = (&pairs[i], &mut sites[i]);
+            let mut local = DriftAccumulator::new(tol);
+            let mut check = DriftAccumulator::new(tol);
+            let measured: Result<()> = reached.iter().enumerate().try_for_each(|(s, full)| {
+                let ia = widen(&out_a[s][&pa.output_name()])?;
+                local.add(&ia, &widen(&out_b[s][&pb.output_name()])?)?;
+                check.add(&widen(&full[&p.a.output])?, &ia)
+            });
+            match measured {
+                Ok(()) => {
+                    rec.local = Some(local.finish());
+                    rec.local_basis = Some(LocalBasis::Isolated);
                     let check = check.finish();
                     if check.beyond_tol > 0 {
                         rec.notes.push(format!(
@@ -512,10 +522,10 @@ fn measure_local(
                     }
                     rec.isolation_max_abs = Some(check.max_abs);
                 }
+                Err(e) => rec
+                    .notes
+                    .push(format!("local drift not measured: {}", flat(&e))),
             }
-            Err(e) => rec
-                .notes
-                .push(format!("local drift not measured: {}", flat(&e))),
         }
     }
     isolated
@@ -527,9 +537,9 @@ fn site_latency(
     b: &Side,
     p: &Pair,
     iso: &Isolated,
-    values: &Values,
     opts: LatencyOptions,
 ) -> Result<latency::SiteLatency> {
+    let values = *p.reached_a().first().context("the site was not reached")?;
     let input = &values[&p.a.input].tensor;
     let decl = InputDecl::of([input])?;
     let single = |side: &Side, extract: &Extract| {

@@ -72,6 +72,25 @@ impl InputDecl {
     }
 }
 
+impl InputDecl {
+    /// A graph input `name` of this type; an axis whose size varies gets a symbolic dim.
+    pub fn value_info(&self, name: &str) -> ValueInfoProto {
+        let named: Vec<String> = (0..self.dims.len())
+            .map(|axis| format!("{name}:axis{axis}"))
+            .collect();
+        let dims: Vec<Dim> = self
+            .dims
+            .iter()
+            .zip(&named)
+            .map(|(d, named)| match d {
+                Some(n) => Dim::Size(*n as i64),
+                None => Dim::Named(named),
+            })
+            .collect();
+        builder::value(name, self.data_type, &dims)
+    }
+}
+
 /// One site in an isolated model: its extract, its input declaration, and the prefix its tensor
 /// and node names take (empty: names as in the original model).
 #[derive(Debug, Clone, Copy)]
@@ -271,30 +290,7 @@ pub fn build(model: &Model, parts: &[Part]) -> Model {
             t.name = Some(rename(t.name()));
             graph.initializer.push(t);
         }
-        let input = part.input_name();
-        let dims: Vec<String> = part
-            .decl
-            .dims
-            .iter()
-            .enumerate()
-            .map(|(axis, d)| match d {
-                Some(n) => n.to_string(),
-                None => format!("{input}:axis{axis}"),
-            })
-            .collect();
-        let dims: Vec<Dim> = part
-            .decl
-            .dims
-            .iter()
-            .zip(&dims)
-            .map(|(d, named)| match d {
-                Some(n) => Dim::Size(*n as i64),
-                None => Dim::Named(named),
-            })
-            .collect();
-        graph
-            .input
-            .push(builder::value(&input, part.decl.data_type, &dims));
+        graph.input.push(part.decl.value_info(&part.input_name()));
         graph
             .output
             .push(typed_value(&part.output_name(), part.decl.data_type));

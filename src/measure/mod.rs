@@ -16,6 +16,7 @@ pub mod pairs;
 pub mod range;
 pub mod result;
 mod stats;
+pub mod subgraphs;
 
 pub use budget::{Budgets, DEFAULT_BUDGET, Offender, Scope};
 pub use compare::{CompareOptions, compare, compare_models};

@@ -528,7 +528,7 @@ fn opset_map(imports: &[OperatorSetIdProto]) -> BTreeMap<String, i64> {
 }
 
 /// Names a subgraph reads from its enclosing scopes (used but not defined inside it).
-fn free_names<'m>(g: &'m GraphProto, out: &mut Vec<&'m str>) {
+pub fn free_names<'m>(g: &'m GraphProto, out: &mut Vec<&'m str>) {
     let mut defined: HashSet<&str> = g.input.iter().map(|v| v.name()).collect();
     defined.extend(g.initializer.iter().map(|t| t.name()));
     defined.extend(

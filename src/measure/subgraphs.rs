@@ -1,0 +1,456 @@
+//! Values computed inside If branches and Scan bodies, so that sites there get drift like
+//! top-level sites.
+//!
+//! **If branches.** tract runs an If branch as a model of its own and keeps none of its values,
+//! so a branch that holds a measured site is lifted into a model of its own, in memory only: the
+//! branch's nodes and initializers, the enclosing graphs' initializers it reads, and every other
+//! tensor it reads from an enclosing graph as an input. It runs on the samples where the If took it, fed the values the
+//! enclosing graph computed on that sample; on the other samples the site is not reached. Branches
+//! nest to any depth (a branch's enclosing graph may itself be a lifted branch).
+//!
+//! **Scan bodies of the main graph.** The main graph runs from a measuring copy, in memory only,
+//! whose Scan nodes carry each requested body value out as one more scan output: the values of
+//! every iteration stacked along a new leading axis, which element-wise sites measure like any
+//! tensor (per-channel parameters broadcast from the right). A Scan body inside another body or
+//! a branch, Loop bodies (tract 0.23.9 has no Loop) and local functions (tract does not inline
+//! them) are not captured: [`reach`] says why.
+
+use std::collections::{BTreeMap, BTreeSet, HashMap};
+
+use anyhow::{Context, Result, bail, ensure};
+
+use super::capture::{self, Values, widen};
+use super::isolate::InputDecl;
+use crate::onnx::builder;
+use crate::onnx::index::free_names;
+use crate::onnx::proto::{GraphProto, ModelProto, TensorProto, ValueInfoProto};
+use crate::onnx::{GraphKind, Model, ModelIndex};
+use crate::run::{self, NamedTensor, Sample, TractModel};
+
+/// Whether values of graph `site_graph` can be captured: the main graph, If branches all the way
+/// up, or a Scan body of the main graph; the reason when not.
+pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
+    let mut g = site_graph;
+    loop {
+        let graph = &index.graphs[g];
+        match &graph.kind {
+            GraphKind::Main => return Ok(()),
+            GraphKind::Function { .. } => {
+                return Err(format!(
+                    "the site is inside {}, whose values are not captured (local functions are not inlined)",
+                    graph.path
+                ));
+            }
+            GraphKind::Subgraph { node, attribute } => {
+                let Some(parent) = graph.parent else {
+                    return Err(format!("{} has no enclosing graph", graph.path));
+                };
+                let op = index.graphs[parent]
+                    .nodes
+                    .get(graph.location.steps.last().map_or(usize::MAX, |s| s.0))
+                    .map_or("", |n| n.op_type());
+                match op {
+                    "If" => g = parent,
+                    "Scan" if g == site_graph && parent == 0 => return Ok(()),
+                    "Scan" => {
+                        return Err(format!(
+                            "the site is inside the body of Scan node '{node}', which is not in the main graph; only If branches and Scan bodies of the main graph are captured"
+                        ));
+                    }
+                    _ => {
+                        return Err(format!(
+                            "the site is inside the {attribute} of {op} node '{node}', whose values are not captured (only If branches and Scan bodies are)"
+                        ));
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// The values of every requested graph, per sample.
+pub struct Captures {
+    main: Vec<Values>,
+    /// Per lifted branch or Scan body: per sample, its values where it ran; or why not run.
+    branches: HashMap<usize, Result<Vec<Option<Values>>, String>>,
+}
+
+impl Captures {
+    /// The main graph's values, one per sample.
+    pub fn main(&self) -> &[Values] {
+        &self.main
+    }
+
+    /// Graph `g`'s values per sample, `None` where it did not run; why they are missing.
+    pub fn at(&self, g: usize) -> Result<Vec<Option<&Values>>, String> {
+        if g == 0 {
+            return Ok(self.main.iter().map(Some).collect());
+        }
+        match self.branches.get(&g) {
+            Some(Ok(v)) => Ok(v.iter().map(Option::as_ref).collect()),
+            Some(Err(e)) => Err(e.clone()),
+            None => Err("its graph's values were not requested".into()),
+        }
+    }
+}
+
+/// Runs `tract` (the model of `index`, or its measuring copy when Scan body values are requested)
+/// on every sample, then every If branch with requested values, outermost first; `requests` are
+/// tensor names per graph index; `what` names the model in errors. An error of the main run is
+/// an error; a branch or body that cannot be captured gives its reason.
+pub fn capture(
+    index: &ModelIndex,
+    tract: &TractModel,
+    samples: &[Sample],
+    mut requests: BTreeMap<usize, BTreeSet<String>>,
+    what: &str,
+    ceiling: u64,
+) -> Result<Captures> {
+    let scan_bodies: Vec<usize> = requests
+        .keys()
+        .copied()
+        .filter(|&g| is_scan_body(index, g))
+        .collect();
+    let scans: Vec<(usize, BTreeSet<String>)> = scan_bodies
+        .into_iter()
+        .map(|g| (g, requests.remove(&g).unwrap_or_default()))
+        .collect();
+    let mut lifts: BTreeMap<usize, Result<Lift, String>> = BTreeMap::new();
+    let mut pending: BTreeSet<usize> = requests.keys().copied().filter(|&g| g != 0).collect();
+    while let Some(g) = pending.pop_last() {
+        let lift = Lift::plan(index, g)
+            .map_err(|e| format!("{e:#}"))
+            .and_then(|l| exposed(tract, &l).map(|()| l));
+        if let Ok(l) = &lift {
+            let asks = requests.entry(l.parent).or_default();
+            asks.insert(l.cond.clone());
+            asks.extend(l.inputs.iter().cloned());
+            if l.parent != 0 {
+                pending.insert(l.parent);
+            }
+        }
+        lifts.insert(g, lift);
+    }
+    let inputs: Vec<&str> = tract.inputs().iter().map(|i| i.name.as_str()).collect();
+    let extra: Vec<String> = requests
+        .remove(&0)
+        .unwrap_or_default()
+        .into_iter()
+        .filter(|n| !inputs.contains(&n.as_str()))
+        .collect();
+    let (main, scan_failure) = if scans.is_empty() {
+        (capture::run_samples(tract, samples, &extra, what)?, None)
+    } else {
+        match run_threaded(index, &scans, samples, &extra, what, ceiling) {
+            Ok(values) => (values, None),
+            Err(e) => (
+                capture::run_samples(tract, samples, &extra, what)?,
+                Some(format!("{e:#}")),
+            ),
+        }
+    };
+    let mut captures = Captures {
+        main,
+        branches: HashMap::new(),
+    };
+    for (g, asks) in &scans {
+        let values = match &scan_failure {
+            Some(why) => Err(format!(
+                "the measuring copy that carries Scan body values out failed: {why}"
+            )),
+            None => Ok(captures
+                .main
+                .iter()
+                .map(|v| Some(unstacked(v, asks)))
+                .collect()),
+        };
+        captures.branches.insert(*g, values);
+    }
+    for (g, lift) in lifts {
+        let values = lift.and_then(|l| {
+            let parent = captures.at(l.parent)?;
+            let asks = requests.remove(&g).unwrap_or_default();
+            l.run(index, &parent, &asks, ceiling)
+                .with_context(|| format!("{what}, {}", index.graphs[g].path))
+                .map_err(|e| format!("{e:#}"))
+        });
+        captures.branches.insert(g, values);
+    }
+    Ok(captures)
+}
+
+/// An If branch to lift: where its inputs come from and when it runs.
+struct Lift {
+    graph: GraphProto,
+    parent: usize,
+    /// The If's condition, a tensor of the enclosing graph.
+    cond: String,
+    /// The condition's value that takes this branch.
+    when: bool,
+    /// Tensors of enclosing graphs the branch reads, other than initializers: its inputs.
+    inputs: Vec<String>,
+    /// Initializers of enclosing graphs the branch reads.
+    outer: Vec<TensorProto>,
+}
+
+impl Lift {
+    fn plan(index: &ModelIndex, g: usize) -> Result<Lift> {
+        let graph = &index.graphs[g];
+        let parent = graph.parent.context("the main graph is not a branch")?;
+        let &(n, a, k) = graph
+            .location
+            .steps
+            .last()
+            .context("no node holds the graph")?;
+        let node = &index.graphs[parent].nodes[n];
+        let attr = &node.attribute[a];
+        ensure!(node.op_type() == "If", "only If branches are lifted");
+        let when = match attr.name() {
+            "then_branch" => true,
+            "else_branch" => false,
+            other => bail!("If attribute '{other}' is not a branch"),
+        };
+        let body = match k {
+            None => attr.g.as_ref(),
+            Some(k) => attr.graphs.get(k),
+        }
+        .context("the branch graph is missing")?;
+        let cond = node
+            .input
+            .first()
+            .context("the If has no condition")?
+            .clone();
+        let mut free = Vec::new();
+        free_names(body, &mut free);
+        let mut seen = BTreeSet::new();
+        let (mut inputs, mut outer) = (Vec::new(), Vec::new());
+        for name in free.into_iter().filter(|n| seen.insert(*n)) {
+            let mut scope = Some(parent);
+            let mut initializer = None;
+            while let Some(s) = scope {
+                let sg = &index.graphs[s];
+                if sg.producer(name).is_some() || sg.is_input(name) {
+                    break;
+                }
+                if let Some(t) = sg.initializer(name) {
+                    initializer = Some(t.clone());
+                    break;
+                }
+                scope = sg.parent;
+            }
+            match initializer {
+                Some(t) => outer.push(t),
+                None => inputs.push(name.to_string()),
+            }
+        }
+        Ok(Lift {
+            graph: body.clone(),
+            parent,
+            cond,
+            when,
+            inputs,
+            outer,
+        })
+    }
+
+    /// Runs the lifted branch on the samples where the enclosing graph's values (`parent`, per
+    /// sample) take it, keeping the `asks` tensors.
+    fn run(
+        &self,
+        index: &ModelIndex,
+        parent: &[Option<&Values>],
+        asks: &BTreeSet<String>,
+        ceiling: u64,
+    ) -> Result<Vec<Option<Values>>> {
+        let mut reached = Vec::new();
+        for (s, values) in parent.iter().enumerate() {
+            let Some(values) = values else { continue };
+            let cond = values
+                .get(&self.cond)
+                .with_context(|| format!("condition '{}' was not captured", self.cond))?;
+            let taken = widen(cond)?.iter().next().is_some_and(|&c| c != 0.0);
+            if taken == self.when {
+                let sample = self
+                    .inputs
+                    .iter()
+                    .map(|name| {
+                        let v = values
+                            .get(name)
+                            .with_context(|| format!("'{name}' was not captured"))?;
+                        Ok(NamedTensor::new(name, v.tensor.clone()))
+                    })
+                    .collect::<Result<Sample>>()?;
+                reached.push((s, sample));
+            }
+        }
+        let mut out: Vec<Option<Values>> = parent.iter().map(|_| None).collect();
+        if reached.is_empty() {
+            return Ok(out);
+        }
+        let mut graph = self.graph.clone();
+        graph.input = (0..self.inputs.len())
+            .map(|i| {
+                let decl = InputDecl::of(reached.iter().map(|(_, s)| &s[i].tensor))?;
+                Ok(decl.value_info(&self.inputs[i]))
+            })
+            .collect::<Result<_>>()?;
+        graph.initializer.extend(self.outer.iter().cloned());
+        graph.value_info.clear();
+        let original = index.model.proto();
+        let proto = ModelProto {
+            ir_version: original.ir_version,
+            opset_import: original.opset_import.clone(),
+            producer_name: Some("actswap".into()),
+            graph: Some(graph),
+            functions: original.functions.clone(),
+            ..Default::default()
+        };
+        let model = Model::from_proto(proto, index.model.dir().to_path_buf());
+        let tract = run::prepare(&model.encode(), Some(model.dir()))?.with_memory_ceiling(ceiling);
+        let extra: Vec<String> = asks
+            .iter()
+            .filter(|n| !self.inputs.contains(n))
+            .cloned()
+            .collect();
+        let samples: Vec<Sample> = reached.iter().map(|(_, s)| s.clone()).collect();
+        let values = capture::run_samples(&tract, &samples, &extra, "lifted branch")?;
+        for ((s, _), v) in reached.iter().zip(values) {
+            out[*s] = Some(v);
+        }
+        Ok(out)
+    }
+}
+
+/// Whether the main graph's run can give what `lift` reads from it (tract exposes every tensor
+/// a node computes, not every name a file may hold).
+fn exposed(tract: &TractModel, lift: &Lift) -> Result<(), String> {
+    if lift.parent != 0 {
+        return Ok(());
+    }
+    let known =
+        |n: &str| tract.outlets.contains_key(n) || tract.inputs().iter().any(|i| i.name == n);
+    match std::iter::once(&lift.cond)
+        .chain(&lift.inputs)
+        .find(|n| !known(n))
+    {
+        Some(n) => Err(format!(
+            "the branch reads '{n}', which the run of the main graph does not give"
+        )),
+        None => Ok(()),
+    }
+}
+
+/// The suffix of a Scan body value carried out of its Scan, iterations stacked.
+const STACKED: &str = "|iterations";
+
+/// The main-graph name of body value `name`, iterations stacked.
+fn stacked(name: &str) -> String {
+    format!("{name}{STACKED}")
+}
+
+/// Runs the measuring copy that carries the `scans` body values out, requesting `extra` too.
+fn run_threaded(
+    index: &ModelIndex,
+    scans: &[(usize, BTreeSet<String>)],
+    samples: &[Sample],
+    extra: &[String],
+    what: &str,
+    ceiling: u64,
+) -> Result<Vec<Values>> {
+    let copy = thread_scans(index, scans)?;
+    let tract = run::prepare(&copy.encode(), Some(copy.dir()))?.with_memory_ceiling(ceiling);
+    let mut extra = extra.to_vec();
+    extra.extend(
+        scans
+            .iter()
+            .flat_map(|(_, asks)| asks.iter().map(|n| stacked(n))),
+    );
+    capture::run_samples(&tract, samples, &extra, what)
+}
+
+/// The body values `asks` of a run of the measuring copy, under their body names.
+fn unstacked(values: &Values, asks: &BTreeSet<String>) -> Values {
+    asks.iter()
+        .filter_map(|n| {
+            let t = values.get(&stacked(n))?;
+            Some((n.clone(), NamedTensor::new(n, t.tensor.clone())))
+        })
+        .collect()
+}
+
+/// Whether graph `g` is the body of a Scan node of the main graph.
+fn is_scan_body(index: &ModelIndex, g: usize) -> bool {
+    let graph = &index.graphs[g];
+    graph.parent == Some(0)
+        && graph
+            .location
+            .steps
+            .last()
+            .and_then(|&(n, _, _)| index.graphs[0].nodes.get(n))
+            .is_some_and(|n| n.op_type() == "Scan")
+}
+
+/// The name to read body value `name` from. tract reshapes a body output in place to stack it,
+/// and its other readers see the reshaped value; so a body output's producer is made to write
+/// `name|raw`, with an Identity back to `name` right after it, and `name|raw` is read.
+fn unhook_output(body: &mut GraphProto, name: &str) -> String {
+    let producer = body
+        .node
+        .iter()
+        .position(|n| n.output.iter().any(|o| o == name));
+    match producer {
+        Some(p) if body.output.iter().any(|o| o.name() == name) => {
+            let raw = format!("{name}|raw");
+            for o in body.node[p].output.iter_mut().filter(|o| *o == name) {
+                o.clone_from(&raw);
+            }
+            let restore = builder::node("Identity", &raw, &[&raw], &[name], vec![]);
+            body.node.insert(p + 1, restore);
+            raw
+        }
+        _ => name.to_string(),
+    }
+}
+
+/// A copy of the model whose Scan nodes carry the requested body values out as extra scan
+/// outputs (each through an Identity, so body inputs and outer values work too).
+fn thread_scans(index: &ModelIndex, scans: &[(usize, BTreeSet<String>)]) -> Result<Model> {
+    let mut proto = index.model.proto().clone();
+    let main = proto.graph.as_mut().context("the model has no graph")?;
+    for (g, asks) in scans {
+        let &(n, a, _) = index.graphs[*g]
+            .location
+            .steps
+            .last()
+            .context("no node holds the body")?;
+        let scan = &mut main.node[n];
+        let body = scan.attribute[a]
+            .g
+            .as_mut()
+            .context("the Scan has no body")?;
+        for name in asks {
+            let inner = format!("{name}|per-iteration");
+            let source = unhook_output(body, name);
+            body.node.push(builder::node(
+                "Identity",
+                &inner,
+                &[&source],
+                &[&inner],
+                vec![],
+            ));
+            body.output.push(ValueInfoProto {
+                name: Some(inner),
+                ..Default::default()
+            });
+        }
+        scan.output.extend(asks.iter().map(|n| stacked(n)));
+        for attr in scan
+            .attribute
+            .iter_mut()
+            .filter(|a| matches!(a.name(), "scan_output_axes" | "scan_output_directions"))
+        {
+            attr.ints.extend(std::iter::repeat_n(0, asks.len()));
+        }
+    }
+    Ok(Model::from_proto(proto, index.model.dir().to_path_buf()))
+}

@@ -168,11 +168,9 @@ impl Model {
     /// encoding in which every message shared with the source file keeps its bytes, fields
     /// unknown to our schema included. Fails rather than drop an unknown field.
     pub fn encode_lossless(&self) -> Result<Bytes> {
-        match (&self.original, &self.source) {
-            (Some(b), _) => Ok(b.clone()),
-            (None, Some(source)) => unknown::encode_keeping(source, &self.proto),
-            (None, None) => Ok(Bytes::from(self.proto.encode_to_vec())),
-        }
+        Ok(self
+            .lossless_bytes()?
+            .unwrap_or_else(|| Bytes::from(self.proto.encode_to_vec())))
     }
 
     /// Adds the files this model was read from to `access`: the model file and every external
@@ -244,16 +242,12 @@ impl Model {
             let bytes = self.save_externalized(&out_dir, &data_name, opts)?;
             return write_atomic(out, &bytes);
         }
-        match self.lossless_bytes()? {
-            Some(bytes) => {
-                self.copy_external_data(&out_dir)?;
-                write_atomic(out, &bytes)
-            }
+        let kept = self.lossless_bytes()?;
+        self.copy_external_data(&out_dir)?;
+        match kept {
+            Some(bytes) => write_atomic(out, &bytes),
             // Nothing to keep beyond what the schema knows: encoded straight into the file.
-            None => {
-                self.copy_external_data(&out_dir)?;
-                write_atomic_with(out, |w| stream::encode_into(&self.proto, w))
-            }
+            None => write_atomic_with(out, |w| stream::encode_into(&self.proto, w)),
         }
     }
 

@@ -352,16 +352,8 @@ fn fitted(
     }
     .map_err(|e| format!("{}:fitted: {e}", kind.id))?;
     let prefix = format!("{}.fitted", site.output);
-    let ctx = EmitCtx {
-        input: &site.input,
-        output: &site.output,
-        prefix: &prefix,
-        elem_type: site.elem_type,
-        opset: site.opset,
-        params,
-    };
     let emitted = fitted
-        .emit(&ctx)
+        .emit(&emit_ctx(site, &prefix, params))
         .map_err(|e| format!("{}:fitted: {e}", kind.id))?;
     Ok((fitted, source, emitted))
 }
@@ -443,15 +435,20 @@ fn emit(
     } else {
         format!("{}.{}", site.output, kind.id)
     };
-    let ctx = EmitCtx {
+    kind.emit(form, &emit_ctx(site, &prefix, params))
+}
+
+/// Where a form of `site` is written: its tensors, element type and opset, new names under
+/// `prefix`.
+fn emit_ctx<'a>(site: &'a Site, prefix: &'a str, params: &'a Params) -> EmitCtx<'a> {
+    EmitCtx {
         input: &site.input,
         output: &site.output,
-        prefix: &prefix,
+        prefix,
         elem_type: site.elem_type,
         opset: site.opset,
         params,
-    };
-    kind.emit(form, &ctx)
+    }
 }
 
 /// True when the site already is its kind's `form`: a fused site asked to stay fused, or a

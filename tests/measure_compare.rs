@@ -15,7 +15,7 @@ mod measure_support;
 
 use actswap::measure::result::LocalBasis;
 use actswap::measure::{Budgets, CompareOptions, LatencyOptions, Scope, compare_models};
-use actswap::run::prepare;
+use actswap::run::{Compilation, prepare};
 use measure_support as fx;
 use ndarray::ArrayD;
 use ndarray_npy::NpzReader;
@@ -194,4 +194,62 @@ fn output_budgets_flag_outputs_and_latency_is_measured() {
     let s = r.sites.iter().find(|s| s.output == output).unwrap();
     let sl = s.latency.unwrap();
     assert!(sl.a_median_s > 0.0 && sl.b_median_s > 0.0 && sl.ratio.is_finite());
+}
+
+#[test]
+fn typed_runs_reproduce_onnxruntime_and_the_optimized_drift() {
+    // Without latency, `compare` runs both models as typed graphs, nothing fused or folded.
+    // Reference: onnxruntime's outputs (outputs.npz), within the 1e-5 the optimized runner is
+    // held to above; and the drift the optimized plans give, within 1e-5 absolute (float32
+    // rounding of differently fused plans of the same ops, common practice).
+    for id in fx::fixture_ids() {
+        let model = fx::load(&id);
+        let samples = fx::samples(&id, &model);
+        let typed = prepare(&model.encode(), Some(model.dir()))
+            .unwrap()
+            .with_compilation(Compilation::Typed);
+        let outputs = typed.run(&samples[0], &[]).unwrap();
+        let mut npz =
+            NpzReader::new(std::fs::File::open(fx::fixture_dir(&id).join("outputs.npz")).unwrap())
+                .unwrap();
+        for t in &outputs {
+            let want: ArrayD<f32> = npz.by_name(&t.name).unwrap();
+            let got = t.to_f64().unwrap();
+            let err = got
+                .iter()
+                .zip(want.iter())
+                .map(|(g, &w)| (g - w as f64).abs())
+                .fold(0.0, f64::max);
+            assert!(err <= 1e-5, "{id} '{}': {err:e} from onnxruntime", t.name);
+        }
+    }
+
+    let id = "leaf-spot-ts-op13";
+    let output = "/blocks.0/act/Mul_output_0";
+    let model = fx::load(id);
+    let rewritten = fx::silu_to_hard_swish(&model, output);
+    let samples = fx::samples(id, &model);
+    let values_only = compare_models(&model, &rewritten, &samples, &no_latency()).unwrap();
+    let optimized = CompareOptions {
+        latency: Some(LatencyOptions { runs: 1, warmup: 0 }),
+        ..CompareOptions::default()
+    };
+    let optimized = compare_models(&model, &rewritten, &samples, &optimized).unwrap();
+    let close = |a: f64, b: f64, what: &str| assert!((a - b).abs() <= 1e-5, "{what}: {a} vs {b}");
+    assert_eq!(values_only.sites.len(), optimized.sites.len());
+    for (t, o) in values_only.sites.iter().zip(&optimized.sites) {
+        assert_eq!(t.output, o.output);
+        for (dt, d_o) in [(&t.local, &o.local), (&t.propagated, &o.propagated)] {
+            let (dt, d_o) = (dt.as_ref().unwrap(), d_o.as_ref().unwrap());
+            close(dt.max_abs, d_o.max_abs, &t.output);
+            close(dt.rms, d_o.rms, &t.output);
+            close(dt.cosine, d_o.cosine, &t.output);
+        }
+        assert_eq!(t.bound_over_range.is_some(), o.bound_over_range.is_some());
+    }
+    for (t, o) in values_only.outputs.iter().zip(&optimized.outputs) {
+        let (mt, mo) = (t.metrics.as_ref().unwrap(), o.metrics.as_ref().unwrap());
+        close(mt.max_abs, mo.max_abs, &t.name);
+        close(mt.mean_abs, mo.mean_abs, &t.name);
+    }
 }

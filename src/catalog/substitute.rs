@@ -294,7 +294,7 @@ const CORE: f64 = 64.0;
 const CORE_STEP: f64 = 1.0 / 64.0;
 /// Minimum number of uniform steps over a finite interval.
 const MIN_STEPS: usize = 4096;
-/// Ratio between tail samples beyond the core: 16 per octave.
+/// Ratio between dense tail samples beyond the core: 16 per octave.
 const TAIL_RATIO: f64 = 1.044_273_782_427_413_8;
 /// The farthest point sampled, standing in for infinity.
 const FAR: f64 = 1e300;
@@ -311,9 +311,9 @@ const TIE: f64 = 1e-12;
 /// and at) when a parameter list does not match its kind or an end is NaN.
 ///
 /// Method: sample the error on a uniform grid (at least 4096 steps over a finite interval, and
-/// step 1/64 on [-64, 64]), on a geometric grid (16 points per octave) from |x| = 64 out to
-/// 1e300 on an infinite side, at both ends and at the breakpoints of both kinds (so kinks and
-/// jumps are evaluated exactly); then refine the 8 largest local maxima of the samples by
+/// step 1/64 on [-64, 64]), on a geometric grid (16 points per octave) beyond |x| = 64, at both
+/// ends and at the breakpoints of both kinds (so kinks and jumps are evaluated exactly); then
+/// refine the 8 largest local maxima of the samples by
 /// golden-section search between their neighbours and keep the largest value. A difference
 /// within 4 ulps of the larger of the two values counts as 0: it is rounding, not error.
 ///
@@ -322,7 +322,11 @@ const TIE: f64 = 1e-12;
 /// kinds is either asymptotically linear with non-zero slope (unbounded) or converges to a
 /// finite limit. The error at x = +-1e300 tells which: above 1e100 (or not a number) it is
 /// unbounded and the result is `INFINITY` at that side; otherwise it is the limit, and when the
-/// limit is the sup (within 1e-12) the result's `at` is that infinity.
+/// limit is the sup (within 1e-12) the result's `at` is that infinity. On an infinite side the
+/// geometric grid stops two octaves past the last octave whose error still differs from that
+/// limit (see [`settled`]; an octave around each breakpoint stays dense), and one sample per
+/// octave covers the rest out to 1e300: about 10,000 samples for the whole line instead of
+/// 40,000, and never below the error sampled on the dense grid (checked in the tests).
 ///
 /// A bound is computed once per process for the same kinds, parameters and ends (see [`memo`]):
 /// a model's sites mostly share them.
@@ -364,7 +368,7 @@ fn computed(from: (&Kind, &[f64]), to: (&Kind, &[f64]), lo: f64, hi: f64) -> Err
 
     let mut breaks = (from.0.breakpoints)(from.1);
     breaks.extend((to.0.breakpoints)(to.1));
-    let xs = samples(lo.max(-FAR), hi.min(FAR), &breaks);
+    let xs = samples(lo.max(-FAR), hi.min(FAR), &breaks, &err);
     let ys: Vec<f64> = xs.iter().map(|&x| err(x)).collect();
     if let Some(i) = ys.iter().position(|y| y.is_nan()) {
         return ErrorBound {
@@ -458,37 +462,10 @@ pub fn max_abs_error_per_channel(
     worst.ok_or_else(|| "no channels".to_string())
 }
 
-/// Sample points for [`max_abs_error`] on a finite `[lo, hi]`, sorted. The grid of the whole
-/// line is built once; the breakpoints are merged into it.
-fn samples(lo: f64, hi: f64, breaks: &[f64]) -> Vec<f64> {
-    if lo == -FAR && hi == FAR {
-        static WHOLE_LINE: std::sync::OnceLock<Vec<f64>> = std::sync::OnceLock::new();
-        let base = WHOLE_LINE.get_or_init(|| grid(-FAR, FAR, &[]));
-        let mut extra: Vec<f64> = breaks
-            .iter()
-            .copied()
-            .filter(|x| (lo..=hi).contains(x))
-            .collect();
-        extra.sort_by(f64::total_cmp);
-        let mut xs = Vec::with_capacity(base.len() + extra.len());
-        let (mut i, mut j) = (0, 0);
-        while i < base.len() || j < extra.len() {
-            if j == extra.len() || (i < base.len() && base[i].total_cmp(&extra[j]).is_le()) {
-                xs.push(base[i]);
-                i += 1;
-            } else {
-                xs.push(extra[j]);
-                j += 1;
-            }
-        }
-        xs.dedup();
-        return xs;
-    }
-    grid(lo, hi, breaks)
-}
-
-/// The sample points of `[lo, hi]` with `breaks`, sorted and without repeats.
-fn grid(lo: f64, hi: f64, breaks: &[f64]) -> Vec<f64> {
+/// Sample points for [`max_abs_error`] on a finite `[lo, hi]` with `breaks`, sorted and
+/// without repeats. A side that stands for an infinite one (an end at +-FAR) is sampled densely
+/// only as far as the error `err` still changes ([`settled`]), and once per octave beyond.
+fn samples(lo: f64, hi: f64, breaks: &[f64], err: &dyn Fn(f64) -> f64) -> Vec<f64> {
     let mut xs = vec![lo, hi];
     let mut uniform = |a: f64, b: f64, steps: usize| {
         xs.extend((0..=steps).map(|i| a + (b - a) * (i as f64 / steps as f64)));
@@ -500,15 +477,63 @@ fn grid(lo: f64, hi: f64, breaks: &[f64]) -> Vec<f64> {
     if a < b {
         uniform(a, b, ((b - a) / CORE_STEP).ceil() as usize);
     }
-    let mut t = CORE;
-    while t < FAR {
-        t *= TAIL_RATIO;
-        xs.extend([t, -t].into_iter().filter(|x| (lo..=hi).contains(x)));
+    for (sign, end) in [(1.0, hi), (-1.0, -lo)] {
+        let dense_to = if end == FAR {
+            xs.extend(octaves().map(|t| sign * t));
+            for &x in breaks
+                .iter()
+                .filter(|x| x.signum() == sign && x.abs() > CORE)
+            {
+                // An octave of dense samples on each side of a kink or a jump far out.
+                xs.extend(dense_tail(x.abs() / 2.0, x.abs() * 2.0).map(|t| sign * t));
+            }
+            settled(sign, err)
+        } else {
+            end
+        };
+        xs.extend(dense_tail(CORE, dense_to).map(|t| sign * t));
     }
     xs.extend(breaks.iter().filter(|x| (lo..=hi).contains(*x)));
+    xs.retain(|x| (lo..=hi).contains(x));
     xs.sort_by(f64::total_cmp);
     xs.dedup();
     xs
+}
+
+/// The tail grid (16 points per octave, from `CORE` outwards) within `(from, to]`.
+fn dense_tail(from: f64, to: f64) -> impl Iterator<Item = f64> {
+    std::iter::successors(Some(CORE), |t| Some(t * TAIL_RATIO))
+        .skip(1)
+        .take_while(move |&t| t <= to.min(FAR) * TAIL_RATIO)
+        .filter(move |&t| t > from && t <= to)
+}
+
+/// One point per octave beyond the core, up to `FAR`.
+fn octaves() -> impl Iterator<Item = f64> {
+    std::iter::successors(Some(CORE * 2.0), |t| Some(t * 2.0)).take_while(|&t| t < FAR)
+}
+
+/// Where the error on the side of `sign` stops changing: the outermost of the once-per-octave
+/// samples whose error differs (beyond rounding) from the error at `FAR`, times 4 (two octaves
+/// more); `CORE` when none does. Beyond that point every octave's sample has the limit's value,
+/// and the catalogue's kinds change only at their breakpoints (sampled densely on their own)
+/// or over a width that grows with |x| (x sigmoid(b x) turns over a width of about 1 / b around
+/// 1 / b; a far tail is a constant or linear function plus a term that decays like e^-|x| or,
+/// for softsign, 1 / |x|): a change between two samples an octave apart would be a feature
+/// narrower than an octave beyond every scale of both kinds.
+fn settled(sign: f64, err: &dyn Fn(f64) -> f64) -> f64 {
+    let limit = err(sign * FAR);
+    let differs = |t: &f64| {
+        let e = err(sign * t);
+        let same = (e - limit).abs() <= ROUNDING * e.max(limit);
+        !same
+    };
+    let last = octaves()
+        .collect::<Vec<f64>>()
+        .into_iter()
+        .rev()
+        .find(differs);
+    last.map_or(CORE, |t| t * 4.0)
 }
 
 /// Golden-section search for the maximum of `g` on `[a, b]`: (value, at).
@@ -661,6 +686,65 @@ mod tests {
                 .filter(|k| k.id != "relu")
                 .all(|k| any.applies_to(k))
         );
+    }
+
+    /// The largest error sampled on the grid this bound used before its tails stopped where
+    /// the error settles: step 1/64 on [-64, 64], 16 points per octave from 64 out to 1e300 on
+    /// both sides, and the breakpoints.
+    fn densely_sampled(err: &dyn Fn(f64) -> f64, breaks: &[f64]) -> f64 {
+        let core = (0..=(2.0 * CORE / CORE_STEP) as usize).map(|i| -CORE + i as f64 * CORE_STEP);
+        let tail = dense_tail(CORE, FAR).flat_map(|t| [t, -t]);
+        core.chain(tail)
+            .chain(breaks.iter().copied())
+            .chain([FAR, -FAR])
+            .map(err)
+            .fold(0.0, f64::max)
+    }
+
+    #[test]
+    fn bounds_over_the_line_are_never_below_dense_sampling() {
+        // Every rule from every kind, at the kind's defaults and with all its parameters scaled
+        // far both ways (slopes of 1e-9 move a swish's turn out to 1e9); the reference is the
+        // error itself, evaluated on the dense grid.
+        let mut checked = 0;
+        for &from in super::super::all() {
+            for scale in [1.0, 1e-3, 1e3, 1e-9] {
+                let p: Vec<f64> = from.defaults().iter().map(|v| v * scale).collect();
+                if scale != 1.0 && p.is_empty() {
+                    continue;
+                }
+                for rule in rules().for_kind(from) {
+                    let Some(q) = rule.target_params(&p) else {
+                        continue;
+                    };
+                    let bound =
+                        computed((from, &p), (rule.to, &q), f64::NEG_INFINITY, f64::INFINITY);
+                    if !bound.value.is_finite() {
+                        continue;
+                    }
+                    let err = |x: f64| {
+                        let (a, b) = (from.eval(x, &p), rule.to.eval(x, &q));
+                        let d = (a - b).abs();
+                        if d <= ROUNDING * a.abs().max(b.abs()) {
+                            0.0
+                        } else {
+                            d
+                        }
+                    };
+                    let mut breaks = (from.breakpoints)(&p);
+                    breaks.extend((rule.to.breakpoints)(&q));
+                    let dense = densely_sampled(&err, &breaks);
+                    assert!(
+                        bound.value >= dense * (1.0 - 1e-12),
+                        "{} on {} {p:?}: {bound:?} below the dense grid's {dense}",
+                        rule.name,
+                        from.id
+                    );
+                    checked += 1;
+                }
+            }
+        }
+        assert!(checked >= 40, "{checked} bounds checked");
     }
 
     #[test]

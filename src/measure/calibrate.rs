@@ -1,13 +1,14 @@
 //! Calibration: the original model run over the samples to observe each site's input range,
 //! which fitted forms are fitted over. Sites of the top-level graph only; the others keep a
-//! declared or default range.
+//! declared or default range. Only values are wanted, so the model runs as typed
+//! ([`Compilation::Typed`]).
 
 use anyhow::{Context, Result};
 
 use super::capture::{self, widen};
 use super::range::{InputRange, RangeCollector};
 use crate::onnx::ModelIndex;
-use crate::run::{self, Sample};
+use crate::run::{self, Compilation, Sample};
 use crate::scan::Site;
 
 /// The observed input range of every top-level site of `sites` with a finite value, by site id.
@@ -18,9 +19,10 @@ pub fn observe(
     memory_ceiling: u64,
 ) -> Result<Vec<(String, InputRange)>> {
     let model = index.model;
-    let tract = run::prepare(&model.encode(), Some(model.dir()))
+    let tract = run::prepare_owned(model.encode(), Some(model.dir()))
         .context("original model (calibration)")?
-        .with_memory_ceiling(memory_ceiling);
+        .with_memory_ceiling(memory_ceiling)
+        .with_compilation(Compilation::Typed);
     let main = &index.graphs[0];
     let top: Vec<&Site> = sites
         .iter()

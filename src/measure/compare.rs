@@ -35,7 +35,7 @@ use super::subgraphs::{self, Captures};
 use crate::catalog::fit::Fitted;
 use crate::catalog::substitute;
 use crate::onnx::{Model, ModelIndex};
-use crate::run::{self, NamedTensor, Sample, TractModel};
+use crate::run::{self, Compilation, NamedTensor, Sample, TractModel};
 use crate::scan::Site;
 
 /// How to compare.
@@ -90,8 +90,19 @@ pub fn compare(
     opts: &CompareOptions,
 ) -> Result<DriftReport> {
     ensure!(!samples.is_empty(), "no input samples to compare on");
-    let a = Side::load(original, "original model", opts.memory_ceiling)?;
-    let b = Side::load(rewritten, "rewritten model", opts.memory_ceiling)?;
+    // Without latency only values are wanted: both models run as typed, which costs time linear
+    // in the node count, and one at a time, so only one holds its weights.
+    let compilation = match opts.latency {
+        Some(_) => Compilation::Optimized,
+        None => Compilation::Typed,
+    };
+    let a = Side::new(original, "original model", opts.memory_ceiling, compilation);
+    let b = Side::new(
+        rewritten,
+        "rewritten model",
+        opts.memory_ceiling,
+        compilation,
+    );
     let reach: Vec<Result<(), String>> = pairs
         .iter()
         .map(|p| {
@@ -110,11 +121,8 @@ pub fn compare(
             .or_default()
             .insert(p.b.output.clone());
     }
-    let capture = |side: &Side, asks, what| {
-        subgraphs::capture(side.index, &side.tract, samples, asks, what, side.ceiling)
-    };
-    let cap_a = capture(&a, asks_a, "original model")?;
-    let cap_b = capture(&b, asks_b, "rewritten model")?;
+    let cap_a = a.capture(samples, asks_a)?;
+    let cap_b = b.capture(samples, asks_b)?;
     let pairs: Vec<Pair> = pairs
         .iter()
         .zip(reach)
@@ -140,7 +148,12 @@ pub fn compare(
                     }
                 }
             }
-            Some(latency::end_to_end(&a.tract, &b.tract, &samples[0], lat)?)
+            Some(latency::end_to_end(
+                &a.load()?,
+                &b.load()?,
+                &samples[0],
+                lat,
+            )?)
         }
         None => None,
     };
@@ -187,27 +200,66 @@ pub fn compare(
     })
 }
 
-/// One model with its index and tract model.
+/// One model with its index, and how it runs.
 struct Side<'i, 'm> {
     model: &'m Model,
     index: &'i ModelIndex<'m>,
-    tract: TractModel,
+    /// The model as errors name it.
+    what: &'static str,
     /// The memory ceiling of every run of this side, isolated sites included.
     ceiling: u64,
+    /// How every run of this side, isolated sites included, is compiled.
+    compilation: Compilation,
 }
 
 impl<'i, 'm> Side<'i, 'm> {
-    fn load(index: &'i ModelIndex<'m>, what: &str, ceiling: u64) -> Result<Side<'i, 'm>> {
-        let model = index.model;
-        let tract = run::prepare(&model.encode(), Some(model.dir()))
-            .with_context(|| what.to_string())?
-            .with_memory_ceiling(ceiling);
-        Ok(Side {
-            model,
+    fn new(
+        index: &'i ModelIndex<'m>,
+        what: &'static str,
+        ceiling: u64,
+        compilation: Compilation,
+    ) -> Side<'i, 'm> {
+        Side {
+            model: index.model,
             index,
-            tract,
+            what,
             ceiling,
-        })
+            compilation,
+        }
+    }
+
+    /// `model` (this side's or one built from it) loaded into tract to run as this side runs.
+    fn prepare(&self, model: &Model, what: &str) -> Result<TractModel> {
+        Ok(run::prepare_owned(model.encode(), Some(model.dir()))
+            .with_context(|| what.to_string())?
+            .with_memory_ceiling(self.ceiling)
+            .with_compilation(self.compilation))
+    }
+
+    /// This side's model loaded into tract.
+    fn load(&self) -> Result<TractModel> {
+        self.prepare(self.model, self.what)
+    }
+
+    /// Runs this side on `samples` with the tensors `asks` of each graph captured; the tract
+    /// model is dropped before returning, so the two sides never hold their weights together.
+    fn capture(
+        &self,
+        samples: &[Sample],
+        asks: BTreeMap<usize, BTreeSet<String>>,
+    ) -> Result<Captures> {
+        let tract = self.load()?;
+        subgraphs::capture(self.index, &tract, samples, asks, self.what, self.ceiling)
+    }
+
+    /// The graph output names, in graph order.
+    fn outputs(&self) -> Vec<String> {
+        self.index
+            .main()
+            .outputs
+            .iter()
+            .map(|&o| o.into())
+            .collect()
     }
 }
 
@@ -481,10 +533,7 @@ fn measure_local(
             })
             .collect();
         let run_isolated = |side: &Side, parts: &[Part], what: &str| -> Result<Vec<Values>> {
-            let model = isolate::build(side.model, parts);
-            let tract = run::prepare(&model.encode(), Some(model.dir()))
-                .context(what.to_string())?
-                .with_memory_ceiling(side.ceiling);
+            let tract = side.prepare(&isolate::build(side.model, parts), what)?;
             capture::run_samples(&tract, &samples, &[], what)
         };
         let runs = run_isolated(a, &parts_a, "isolated original sites")
@@ -567,9 +616,9 @@ fn measure_outputs(
     values_b: &[Values],
     tol: Tolerance,
 ) -> Vec<(OutputDrift, Result<(), String>)> {
-    a.tract
-        .output_names()
-        .iter()
+    let names_b = b.outputs();
+    a.outputs()
+        .into_iter()
         .map(|name| {
             let mut out = OutputDrift {
                 name: name.clone(),
@@ -577,7 +626,7 @@ fn measure_outputs(
                 top1_agreement: None,
                 notes: Vec::new(),
             };
-            if !b.tract.output_names().contains(name) {
+            if !names_b.contains(&name) {
                 let why = "the rewritten model has no such output".to_string();
                 out.notes.push(why.clone());
                 return (out, Err(why));
@@ -586,7 +635,7 @@ fn measure_outputs(
             let mut top1 = Top1Accumulator::default();
             let mut ranks = true;
             let measured: Result<()> = values_a.iter().zip(values_b).try_for_each(|(va, vb)| {
-                let (x, y) = (widen(&va[name])?, widen(&vb[name])?);
+                let (x, y) = (widen(&va[&name])?, widen(&vb[&name])?);
                 acc.add(&x, &y)?;
                 ranks &= top1_applies(x.shape());
                 if ranks {

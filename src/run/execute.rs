@@ -1,7 +1,8 @@
 //! Typing, optimizing and running a loaded model on concrete inputs.
 //!
 //! Compiling fixes every symbolic dim to the size the sample gives it ([`super::symbols`]), types
-//! the model, checks the memory ceiling ([`super::ceiling`]), then optimizes it.
+//! the model, checks the memory ceiling ([`super::ceiling`]), then optimizes it, unless the model
+//! is to run as typed ([`Compilation`]).
 
 use std::collections::HashSet;
 use std::sync::Arc;
@@ -17,6 +18,20 @@ use super::{NamedTensor, RunError, TractModel, ceiling, symbols};
 
 /// The stage of typing, as errors name it.
 const TYPE: &str = "type the model";
+
+/// How far a model is taken before it runs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Compilation {
+    /// Through tract's optimizer (declutter, then codegen): the plan a deployment runs, the one
+    /// latency is measured on.
+    #[default]
+    Optimized,
+    /// The typed graph as the file states it, each op evaluated on its own in the model's
+    /// element types, with nothing fused or folded. For values only: compiling costs time linear
+    /// in the node count, where tract 0.23.9's optimizer compares every node a patch adds with
+    /// every node of the graph and applies about one patch per node.
+    Typed,
+}
 
 /// A model typed and optimized for one set of input types and shapes, ready to run many times.
 #[derive(Debug, Clone)]
@@ -44,10 +59,10 @@ fn optimize(mut model: TypedModel) -> TractResult<TypedModel> {
 }
 
 impl TractModel {
-    /// Types and optimizes the model for the element types and shapes of `sample`, with the
-    /// graph outputs followed by `extra_outputs` (ONNX tensor names, e.g. intermediate values;
-    /// names already among the outputs are not repeated). Requested values are kept through
-    /// optimization.
+    /// Types the model for the element types and shapes of `sample`, and optimizes it unless it
+    /// runs as typed ([`TractModel::with_compilation`]), with the graph outputs followed by
+    /// `extra_outputs` (ONNX tensor names, e.g. intermediate values; names already among the
+    /// outputs are not repeated). Requested values are kept through optimization.
     pub fn compile(
         &self,
         sample: &[NamedTensor],
@@ -78,9 +93,13 @@ impl TractModel {
         };
         ceiling::check(&typed, self.memory_ceiling, &self.origins)?;
         let attribute = |e| self.origins.attribute(e);
-        let optimized = guarded("optimize the model", || optimize(typed)).map_err(attribute)?;
-        let runnable =
-            guarded("plan the model", || optimized.into_runnable()).map_err(attribute)?;
+        let planned = match self.compilation {
+            Compilation::Optimized => {
+                guarded("optimize the model", || optimize(typed)).map_err(attribute)?
+            }
+            Compilation::Typed => typed,
+        };
+        let runnable = guarded("plan the model", || planned.into_runnable()).map_err(attribute)?;
         Ok(Compiled {
             runnable,
             inputs: self.inputs.clone(),

@@ -4,6 +4,7 @@ use std::collections::HashMap;
 use std::path::Path;
 use std::sync::Arc;
 
+use bytes::Bytes;
 use prost::Message;
 use tract_onnx::pb::tensor_proto::DataLocation;
 use tract_onnx::pb::{GraphProto, ModelProto};
@@ -11,6 +12,7 @@ use tract_onnx::prelude::{InferenceModel, OutletId};
 use tract_onnx::tract_core::ops::unimpl::UnimplementedOp;
 
 use super::ceiling::DEFAULT_MEMORY_CEILING;
+use super::execute::Compilation;
 use super::guard::guarded;
 use super::names::{NodeOrigins, make_node_names_unique};
 use super::signature::{InputSpec, read_inputs};
@@ -26,6 +28,7 @@ pub struct TractModel {
     pub(crate) outputs: Vec<String>,
     pub(crate) origins: Arc<NodeOrigins>,
     pub(crate) memory_ceiling: u64,
+    pub(crate) compilation: Compilation,
 }
 
 /// Decodes `model_bytes` and loads them into tract. `model_dir` is the folder external data is
@@ -35,7 +38,20 @@ pub struct TractModel {
 /// corrected loaders. A model with ops tract cannot run is refused here, naming each op type and
 /// node.
 pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractModel, RunError> {
-    let mut proto = ModelProto::decode(model_bytes).map_err(|e| RunError::Decode(e.to_string()))?;
+    let proto = ModelProto::decode(model_bytes).map_err(|e| RunError::Decode(e.to_string()))?;
+    load(proto, model_dir)
+}
+
+/// [`prepare`] for bytes handed over: they are released as soon as they are decoded, before
+/// tract copies the weights into its own tensors, so a freshly encoded model's weights are held
+/// twice at the most while it loads, not three times.
+pub fn prepare_owned(model_bytes: Bytes, model_dir: Option<&Path>) -> Result<TractModel, RunError> {
+    let proto = ModelProto::decode(model_bytes).map_err(|e| RunError::Decode(e.to_string()))?;
+    load(proto, model_dir)
+}
+
+/// Loads a decoded model into tract; see [`prepare`].
+fn load(mut proto: ModelProto, model_dir: Option<&Path>) -> Result<TractModel, RunError> {
     let graph = proto
         .graph
         .as_mut()
@@ -75,6 +91,7 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
         outputs,
         origins: Arc::new(origins),
         memory_ceiling: DEFAULT_MEMORY_CEILING,
+        compilation: Compilation::default(),
     })
 }
 
@@ -125,6 +142,14 @@ impl TractModel {
     pub fn with_memory_ceiling(self, bytes: u64) -> Self {
         TractModel {
             memory_ceiling: bytes,
+            ..self
+        }
+    }
+
+    /// Sets how far every compile takes the model (default [`Compilation::Optimized`]).
+    pub fn with_compilation(self, compilation: Compilation) -> Self {
+        TractModel {
+            compilation,
             ..self
         }
     }

@@ -49,9 +49,9 @@ mod unary;
 
 pub use ceiling::DEFAULT_MEMORY_CEILING;
 pub use error::RunError;
-pub use execute::Compiled;
+pub use execute::{Compilation, Compiled};
 pub use guard::catching_panics;
-pub use load::{TractModel, input_specs, prepare};
+pub use load::{TractModel, input_specs, prepare, prepare_owned};
 pub use signature::{Dim, InputSpec};
 pub use tensor::{NamedTensor, Sample, to_f64_array};
 pub use tract_onnx::prelude::{DatumType, Tensor};

@@ -344,17 +344,7 @@ fn computed(from: (&Kind, &[f64]), to: (&Kind, &[f64]), lo: f64, hi: f64) -> Err
         };
     }
     let (lo, hi) = if lo <= hi { (lo, hi) } else { (hi, lo) };
-    let err = |x: f64| {
-        let (a, b) = (from.0.eval(x, from.1), to.0.eval(x, to.1));
-        let d = (a - b).abs();
-        // A difference within the rounding of the values themselves is no error (it would
-        // otherwise reach 1e284 at x = 1e300 between two functions that both equal x).
-        if d <= ROUNDING * a.abs().max(b.abs()) {
-            0.0
-        } else {
-            d
-        }
-    };
+    let err = |x: f64| difference(from, to, x);
     let sides = [(hi == f64::INFINITY, FAR), (lo == f64::NEG_INFINITY, -FAR)];
     for (open, far) in sides {
         let e = err(far);
@@ -460,6 +450,26 @@ pub fn max_abs_error_per_channel(
         }
     }
     worst.ok_or_else(|| "no channels".to_string())
+}
+
+/// |from(x) - to(x)|, with a difference within the rounding of the values themselves counted as
+/// no error (it would otherwise reach 1e284 at x = 1e300 between two functions that both equal
+/// x), and an overflow on one side only as an infinite error (x^2 against x is unbounded, not
+/// within rounding of an infinite value).
+fn difference(from: (&Kind, &[f64]), to: (&Kind, &[f64]), x: f64) -> f64 {
+    let (a, b) = (from.0.eval(x, from.1), to.0.eval(x, to.1));
+    if a == b {
+        return 0.0;
+    }
+    if a.is_infinite() || b.is_infinite() {
+        return f64::INFINITY;
+    }
+    let d = (a - b).abs();
+    if d <= ROUNDING * a.abs().max(b.abs()) {
+        0.0
+    } else {
+        d
+    }
 }
 
 /// Sample points for [`max_abs_error`] on a finite `[lo, hi]` with `breaks`, sorted and
@@ -722,15 +732,7 @@ mod tests {
                     if !bound.value.is_finite() {
                         continue;
                     }
-                    let err = |x: f64| {
-                        let (a, b) = (from.eval(x, &p), rule.to.eval(x, &q));
-                        let d = (a - b).abs();
-                        if d <= ROUNDING * a.abs().max(b.abs()) {
-                            0.0
-                        } else {
-                            d
-                        }
-                    };
+                    let err = |x: f64| difference((from, &p), (rule.to, &q), x);
                     let mut breaks = (from.breakpoints)(&p);
                     breaks.extend((rule.to.breakpoints)(&q));
                     let dense = densely_sampled(&err, &breaks);

@@ -8,7 +8,7 @@ use anyhow::{Context, Result};
 use super::capture::{self, widen};
 use super::range::{InputRange, RangeCollector};
 use crate::onnx::ModelIndex;
-use crate::run::{self, Compilation, Sample};
+use crate::run::{Compilation, Sample};
 use crate::scan::Site;
 
 /// The observed input range of every top-level site of `sites` with a finite value, by site id.
@@ -19,7 +19,7 @@ pub fn observe(
     memory_ceiling: u64,
 ) -> Result<Vec<(String, InputRange)>> {
     let model = index.model;
-    let tract = run::prepare_owned(model.encode(), Some(model.dir()))
+    let tract = capture::load(model)
         .context("original model (calibration)")?
         .with_memory_ceiling(memory_ceiling)
         .with_compilation(Compilation::Typed);

@@ -6,7 +6,12 @@ use std::collections::HashMap;
 use anyhow::{Context, Result};
 use ndarray::ArrayD;
 
-use crate::run::{Compiled, DatumType, NamedTensor, Sample, Tensor, TractModel, to_f64_array};
+use prost::Message;
+
+use crate::onnx::Model;
+use crate::run::{
+    self, Compiled, DatumType, NamedTensor, Sample, Tensor, TractModel, to_f64_array,
+};
 
 /// The tensors of one run by ONNX name: the sample's inputs, the graph outputs and every
 /// requested intermediate.
@@ -14,6 +19,23 @@ pub type Values = HashMap<String, NamedTensor>;
 
 /// The element types and shapes of a sample's tensors: one compiled plan per distinct key.
 type ShapeKey = Vec<(DatumType, Vec<usize>)>;
+
+/// `model` loaded into tract in parts ([`run::prepare_parts`]): a model rewritten in memory is
+/// never encoded whole, so its weights are not held a third time while it loads.
+pub fn load(model: &Model) -> Result<TractModel> {
+    let mut head = model.proto().clone();
+    let initializers = head
+        .graph
+        .as_mut()
+        .map(|g| std::mem::take(&mut g.initializer))
+        .unwrap_or_default();
+    let parts = initializers.into_iter().map(|t| t.encode_to_vec());
+    Ok(run::prepare_parts(
+        &head.encode_to_vec(),
+        parts,
+        Some(model.dir()),
+    )?)
+}
 
 /// Runs `model` on every sample with `extra` tensors requested; `what` names the model in errors.
 pub fn run_samples(

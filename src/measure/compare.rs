@@ -230,7 +230,7 @@ impl<'i, 'm> Side<'i, 'm> {
 
     /// `model` (this side's or one built from it) loaded into tract to run as this side runs.
     fn prepare(&self, model: &Model, what: &str) -> Result<TractModel> {
-        Ok(run::prepare_owned(model.encode(), Some(model.dir()))
+        Ok(capture::load(model)
             .with_context(|| what.to_string())?
             .with_memory_ceiling(self.ceiling)
             .with_compilation(self.compilation))
@@ -432,8 +432,14 @@ struct Isolated {
     identical: bool,
 }
 
-/// Local drift of every site whose input was captured, with all isolated sites of each model
-/// in one model (one compile and one run per model and sample). A site the rewrite left
+/// Sites isolated together in one model. tract's typing grows with the square of a graph's node
+/// count (it compares every node it adds with the graph's names and constants), so many small
+/// models cost time linear in the site count where one large model does not.
+const SITES_PER_ISOLATED_MODEL: usize = 64;
+
+/// Local drift of every site whose input was captured, with the isolated sites of each graph
+/// in models of up to [`SITES_PER_ISOLATED_MODEL`] sites (one compile and one run per such
+/// model and sample). A site the rewrite left
 /// identical (same nodes, attributes and constants, same opsets) computes the original's values
 /// from the original's input, so it is not run: its local drift is the captured original output
 /// against itself, and its basis says so. Returns each pair's isolation.
@@ -505,7 +511,10 @@ fn measure_local(
             groups.entry(p.a.graph_index).or_default().push(i);
         }
     }
-    for members in groups.values() {
+    for members in groups
+        .values()
+        .flat_map(|m| m.chunks(SITES_PER_ISOLATED_MODEL))
+    {
         let (head, iso) = (&pairs[members[0]], |i: usize| {
             isolated[i].as_ref().expect("grouped sites are isolated")
         });

@@ -93,13 +93,23 @@ impl TractModel {
         };
         ceiling::check(&typed, self.memory_ceiling, &self.origins)?;
         let attribute = |e| self.origins.attribute(e);
-        let planned = match self.compilation {
+        let runnable = match self.compilation {
             Compilation::Optimized => {
-                guarded("optimize the model", || optimize(typed)).map_err(attribute)?
+                let optimized =
+                    guarded("optimize the model", || optimize(typed)).map_err(attribute)?;
+                guarded("plan the model", || optimized.into_runnable())
             }
-            Compilation::Typed => typed,
-        };
-        let runnable = guarded("plan the model", || planned.into_runnable()).map_err(attribute)?;
+            // tract's memory-friendly ordering grows with the square of the node count; the
+            // plain topological order computes the same values.
+            Compilation::Typed => guarded("plan the model", || {
+                let options = RunOptions {
+                    skip_order_opt_ram: true,
+                    ..RunOptions::default()
+                };
+                typed.into_runnable_with_options(&options)
+            }),
+        }
+        .map_err(attribute)?;
         Ok(Compiled {
             runnable,
             inputs: self.inputs.clone(),

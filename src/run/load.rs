@@ -4,10 +4,9 @@ use std::collections::HashMap;
 use std::path::Path;
 use std::sync::Arc;
 
-use bytes::Bytes;
 use prost::Message;
 use tract_onnx::pb::tensor_proto::DataLocation;
-use tract_onnx::pb::{GraphProto, ModelProto};
+use tract_onnx::pb::{GraphProto, ModelProto, TensorProto};
 use tract_onnx::prelude::{InferenceModel, OutletId};
 use tract_onnx::tract_core::ops::unimpl::UnimplementedOp;
 
@@ -42,11 +41,26 @@ pub fn prepare(model_bytes: &[u8], model_dir: Option<&Path>) -> Result<TractMode
     load(proto, model_dir)
 }
 
-/// [`prepare`] for bytes handed over: they are released as soon as they are decoded, before
-/// tract copies the weights into its own tensors, so a freshly encoded model's weights are held
-/// twice at the most while it loads, not three times.
-pub fn prepare_owned(model_bytes: Bytes, model_dir: Option<&Path>) -> Result<TractModel, RunError> {
-    let proto = ModelProto::decode(model_bytes).map_err(|e| RunError::Decode(e.to_string()))?;
+/// [`prepare`] for a model given in parts: its encoding without the main graph's initializers,
+/// then each of those initializers encoded on its own, in graph order. The whole encoding is
+/// never held at once, so loading a re-encoded model holds its weights twice at the most
+/// (tract's decoded message, then tract's tensors), not three times.
+pub fn prepare_parts(
+    head: &[u8],
+    initializers: impl IntoIterator<Item = Vec<u8>>,
+    model_dir: Option<&Path>,
+) -> Result<TractModel, RunError> {
+    let decode_error = |e: prost::DecodeError| RunError::Decode(e.to_string());
+    let mut proto = ModelProto::decode(head).map_err(decode_error)?;
+    let graph = proto
+        .graph
+        .as_mut()
+        .ok_or_else(|| RunError::Decode("no graph".to_string()))?;
+    for tensor in initializers {
+        graph
+            .initializer
+            .push(TensorProto::decode(&tensor[..]).map_err(decode_error)?);
+    }
     load(proto, model_dir)
 }
 

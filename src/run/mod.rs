@@ -51,7 +51,7 @@ pub use ceiling::DEFAULT_MEMORY_CEILING;
 pub use error::RunError;
 pub use execute::{Compilation, Compiled};
 pub use guard::catching_panics;
-pub use load::{TractModel, input_specs, prepare, prepare_owned};
+pub use load::{TractModel, input_specs, prepare, prepare_parts};
 pub use signature::{Dim, InputSpec};
 pub use tensor::{NamedTensor, Sample, to_f64_array};
 pub use tract_onnx::prelude::{DatumType, Tensor};

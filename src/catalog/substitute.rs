@@ -505,7 +505,7 @@ fn samples(lo: f64, hi: f64, breaks: &[f64], err: &dyn Fn(f64) -> f64) -> Vec<f6
     }
     xs.extend(breaks.iter().filter(|x| (lo..=hi).contains(*x)));
     xs.retain(|x| (lo..=hi).contains(x));
-    xs.sort_by(f64::total_cmp);
+    xs.sort_unstable_by(f64::total_cmp);
     xs.dedup();
     xs
 }

@@ -3,10 +3,12 @@
 //!
 //! The sites come as pairs (original, counterpart): from the plan and the applied rewrite in
 //! `audit`, from [`super::pairs::by_output`] when two files are compared. Each model runs once
-//! per sample with every pair's input and output requested as extra outputs; a site inside an If
-//! branch is captured by running the branch lifted into a model of its own, on the samples where
-//! the If takes it, and a site in a Scan body of the main graph by a measuring copy that carries
-//! its values out of the Scan, every iteration stacked ([`super::subgraphs`]). Per pair:
+//! per sample with every pair's input and output requested as extra outputs, one model after
+//! the other (only the captured values are kept), optimized when latency is measured and as its
+//! typed graph otherwise ([`Compilation`]); a site inside an If branch is captured by running the
+//! branch lifted into a model of its own, on the samples where the If takes it, and a site in a
+//! Scan body of the main graph by a measuring copy that carries its values out of the Scan,
+//! every iteration stacked ([`super::subgraphs`]). Per pair:
 //! - **local drift**: the rewritten model's site, isolated ([`super::isolate`]), against the
 //!   original site, isolated, both fed the very tensor the original site received. Both sides go
 //!   through the same isolation and the same tract optimizer, so the difference is the swap's
@@ -504,7 +506,7 @@ fn measure_local(
             }
         }
     }
-    // One isolated model per graph: the sites of a graph are reached on the same samples.
+    // Isolated models per graph: the sites of a graph are reached on the same samples.
     let mut groups: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
     for (i, (p, iso)) in pairs.iter().zip(&isolated).enumerate() {
         if iso.as_ref().is_some_and(|i| !i.identical) {

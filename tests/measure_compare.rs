@@ -13,6 +13,7 @@
 
 mod measure_support;
 
+use actswap::measure::capture;
 use actswap::measure::result::LocalBasis;
 use actswap::measure::{Budgets, CompareOptions, LatencyOptions, Scope, compare_models};
 use actswap::run::{Compilation, prepare};
@@ -229,6 +230,20 @@ fn typed_runs_reproduce_onnxruntime_and_the_optimized_drift() {
     let model = fx::load(id);
     let rewritten = fx::silu_to_hard_swish(&model, output);
     let samples = fx::samples(id, &model);
+    // A model rewritten in memory reaches tract initializer by initializer: the same model as
+    // its whole encoding, so the same values bit for bit.
+    let whole = prepare(&rewritten.encode(), Some(rewritten.dir()))
+        .unwrap()
+        .run(&samples[0], &[])
+        .unwrap();
+    let parts = capture::load(&rewritten)
+        .unwrap()
+        .run(&samples[0], &[])
+        .unwrap();
+    assert_eq!(whole.len(), parts.len());
+    for (w, p) in whole.iter().zip(&parts) {
+        assert_eq!((&w.name, &w.tensor), (&p.name, &p.tensor));
+    }
     let values_only = compare_models(&model, &rewritten, &samples, &no_latency()).unwrap();
     let optimized = CompareOptions {
         latency: Some(LatencyOptions { runs: 1, warmup: 0 }),

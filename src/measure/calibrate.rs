@@ -6,8 +6,9 @@ use anyhow::{Context, Result};
 
 use super::capture::{self, widen};
 use super::range::{InputRange, RangeCollector};
+use super::runnable;
 use crate::onnx::ModelIndex;
-use crate::run::{self, Sample};
+use crate::run::Sample;
 use crate::scan::Site;
 
 /// The observed input range of every top-level site of `sites` with a finite value, by site id.
@@ -17,10 +18,9 @@ pub fn observe(
     samples: &[Sample],
     memory_ceiling: u64,
 ) -> Result<Vec<(String, InputRange)>> {
-    let model = index.model;
-    let tract = run::prepare(&model.encode(), Some(model.dir()))
+    let tract = runnable::prepare(index, samples, memory_ceiling)
         .context("original model (calibration)")?
-        .with_memory_ceiling(memory_ceiling);
+        .tract;
     let main = &index.graphs[0];
     let top: Vec<&Site> = sites
         .iter()

@@ -31,6 +31,7 @@ use super::metrics::{DriftAccumulator, Tolerance, Top1Accumulator, top1_applies}
 use super::pairs::SitePair;
 use super::range::RangeCollector;
 use super::result::{CAUTION, DriftReport, LocalBasis, OutputDrift, SiteDrift, UnmatchedSite};
+use super::runnable::{self, Runnable};
 use super::subgraphs::{self, Captures};
 use crate::catalog::fit::Fitted;
 use crate::catalog::substitute;
@@ -90,8 +91,8 @@ pub fn compare(
     opts: &CompareOptions,
 ) -> Result<DriftReport> {
     ensure!(!samples.is_empty(), "no input samples to compare on");
-    let a = Side::load(original, "original model", opts.memory_ceiling)?;
-    let b = Side::load(rewritten, "rewritten model", opts.memory_ceiling)?;
+    let a = Side::load(original, "original model", samples, opts.memory_ceiling)?;
+    let b = Side::load(rewritten, "rewritten model", samples, opts.memory_ceiling)?;
     let reach: Vec<Result<(), String>> = pairs
         .iter()
         .map(|p| {
@@ -111,7 +112,14 @@ pub fn compare(
             .insert(p.b.output.clone());
     }
     let capture = |side: &Side, asks, what| {
-        subgraphs::capture(side.index, &side.tract, samples, asks, what, side.ceiling)
+        subgraphs::capture(
+            side.index,
+            &side.runnable,
+            samples,
+            asks,
+            what,
+            side.ceiling,
+        )
     };
     let cap_a = capture(&a, asks_a, "original model")?;
     let cap_b = capture(&b, asks_b, "rewritten model")?;
@@ -140,7 +148,7 @@ pub fn compare(
                     }
                 }
             }
-            Some(latency::end_to_end(&a.tract, &b.tract, &samples[0], lat)?)
+            Some(latency::end_to_end(a.tract(), b.tract(), &samples[0], lat)?)
         }
         None => None,
     };
@@ -187,27 +195,34 @@ pub fn compare(
     })
 }
 
-/// One model with its index and tract model.
+/// One model with its index and the copy tract runs.
 struct Side<'i, 'm> {
     model: &'m Model,
     index: &'i ModelIndex<'m>,
-    tract: TractModel,
+    runnable: Runnable,
     /// The memory ceiling of every run of this side, isolated sites included.
     ceiling: u64,
 }
 
 impl<'i, 'm> Side<'i, 'm> {
-    fn load(index: &'i ModelIndex<'m>, what: &str, ceiling: u64) -> Result<Side<'i, 'm>> {
-        let model = index.model;
-        let tract = run::prepare(&model.encode(), Some(model.dir()))
-            .with_context(|| what.to_string())?
-            .with_memory_ceiling(ceiling);
+    fn load(
+        index: &'i ModelIndex<'m>,
+        what: &str,
+        samples: &[Sample],
+        ceiling: u64,
+    ) -> Result<Side<'i, 'm>> {
+        let runnable =
+            runnable::prepare(index, samples, ceiling).with_context(|| what.to_string())?;
         Ok(Side {
-            model,
+            model: index.model,
             index,
-            tract,
+            runnable,
             ceiling,
         })
+    }
+
+    fn tract(&self) -> &TractModel {
+        &self.runnable.tract
     }
 }
 
@@ -220,6 +235,8 @@ struct Pair<'s, 'v> {
     fit: Option<&'s Fitted>,
     /// Per sample, the values of each site's graph where it ran; the reason when not captured.
     seen: Result<Seen<'v>, String>,
+    /// How the figures combine the iterations or calls of a Loop or function body.
+    combined: Option<&'v str>,
 }
 
 /// The values of a pair's graphs per sample (`None`: the sample did not reach the graph).
@@ -236,16 +253,26 @@ impl<'s, 'v> Pair<'s, 'v> {
         cap_b: &'v Captures,
     ) -> Pair<'s, 'v> {
         let seen = reach.and_then(|()| {
-            Ok(Seen {
+            let seen = Seen {
                 a: cap_a.at(p.a.graph_index)?,
                 b: cap_b.at(p.b.graph_index)?,
-            })
+            };
+            if seen.a.len() != seen.b.len() {
+                return Err(format!(
+                    "{} runs {} time(s) in the original model and {} in the rewritten one",
+                    p.a.graph,
+                    seen.a.len(),
+                    seen.b.len()
+                ));
+            }
+            Ok(seen)
         });
         Pair {
             a: &p.a,
             b: &p.b,
             fit: p.fit.as_ref(),
             seen,
+            combined: cap_a.note(p.a.graph_index),
         }
     }
 
@@ -262,10 +289,10 @@ impl<'s, 'v> Pair<'s, 'v> {
         match &self.seen {
             Err(why) => notes.push(format!("drift not measured: {why}")),
             Ok(_) if self.reached_a().is_empty() => notes.push(format!(
-                "drift not measured: not reached on these samples ({} did not run)",
+                "drift not measured: not reached on these samples ({} did not run): give inputs that reach it",
                 self.a.graph
             )),
-            Ok(_) => {}
+            Ok(_) => notes.extend(self.combined.map(str::to_string)),
         }
         SiteDrift {
             id_a: self.a.id.clone(),
@@ -567,7 +594,7 @@ fn measure_outputs(
     values_b: &[Values],
     tol: Tolerance,
 ) -> Vec<(OutputDrift, Result<(), String>)> {
-    a.tract
+    a.tract()
         .output_names()
         .iter()
         .map(|name| {
@@ -577,7 +604,7 @@ fn measure_outputs(
                 top1_agreement: None,
                 notes: Vec::new(),
             };
-            if !b.tract.output_names().contains(name) {
+            if !b.tract().output_names().contains(name) {
                 let why = "the rewritten model has no such output".to_string();
                 out.notes.push(why.clone());
                 return (out, Err(why));

@@ -21,23 +21,25 @@ use anyhow::{Context, Result, bail, ensure};
 
 use super::capture::{self, Values, widen};
 use super::isolate::InputDecl;
+use super::runnable::{self, Instance, Runnable};
 use crate::onnx::builder;
 use crate::onnx::index::free_names;
 use crate::onnx::proto::{GraphProto, ModelProto, TensorProto, ValueInfoProto};
 use crate::onnx::{GraphKind, Model, ModelIndex};
-use crate::run::{self, NamedTensor, Sample, TractModel};
+use crate::run::{NamedTensor, Sample, TractModel};
 
 /// Whether values of graph `site_graph` can be captured: the main graph, If branches all the way
-/// up, or a Scan body of the main graph; the reason when not.
+/// up, a Scan or Loop body of the main graph, or a local function's body; the reason when not.
 pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
     let mut g = site_graph;
     loop {
         let graph = &index.graphs[g];
         match &graph.kind {
             GraphKind::Main => return Ok(()),
+            GraphKind::Function { .. } if g == site_graph => return Ok(()),
             GraphKind::Function { .. } => {
                 return Err(format!(
-                    "the site is inside {}, whose values are not captured (local functions are not inlined)",
+                    "the site is inside a branch or body of {}, whose values are not captured",
                     graph.path
                 ));
             }
@@ -51,15 +53,15 @@ pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
                     .map_or("", |n| n.op_type());
                 match op {
                     "If" => g = parent,
-                    "Scan" if g == site_graph && parent == 0 => return Ok(()),
-                    "Scan" => {
+                    "Scan" | "Loop" if g == site_graph && parent == 0 => return Ok(()),
+                    "Scan" | "Loop" => {
                         return Err(format!(
-                            "the site is inside the body of Scan node '{node}', which is not in the main graph; only If branches and Scan bodies of the main graph are captured"
+                            "the site is inside the body of {op} node '{node}', which is not in the main graph; only If branches and Scan and Loop bodies of the main graph are captured"
                         ));
                     }
                     _ => {
                         return Err(format!(
-                            "the site is inside the {attribute} of {op} node '{node}', whose values are not captured (only If branches and Scan bodies are)"
+                            "the site is inside the {attribute} of {op} node '{node}', whose values are not captured (only If branches and Scan and Loop bodies are)"
                         ));
                     }
                 }
@@ -71,8 +73,11 @@ pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
 /// The values of every requested graph, per sample.
 pub struct Captures {
     main: Vec<Values>,
-    /// Per lifted branch or Scan body: per sample, its values where it ran; or why not run.
+    /// Per lifted branch or Scan body: per sample, its values where it ran; per Loop or function
+    /// body: per sample, then per iteration or call; or why not run.
     branches: HashMap<usize, Result<Vec<Option<Values>>, String>>,
+    /// How the figures of a Loop or function body combine its iterations or calls.
+    notes: HashMap<usize, String>,
 }
 
 impl Captures {
@@ -81,7 +86,13 @@ impl Captures {
         &self.main
     }
 
-    /// Graph `g`'s values per sample, `None` where it did not run; why they are missing.
+    /// How the figures of graph `g` combine its iterations or calls, for a Loop or function body.
+    pub fn note(&self, g: usize) -> Option<&str> {
+        self.notes.get(&g).map(String::as_str)
+    }
+
+    /// Graph `g`'s values per sample (per sample and iteration or call, for a Loop or function
+    /// body), `None` where it did not run; why they are missing.
     pub fn at(&self, g: usize) -> Result<Vec<Option<&Values>>, String> {
         if g == 0 {
             return Ok(self.main.iter().map(Some).collect());
@@ -94,18 +105,38 @@ impl Captures {
     }
 }
 
-/// Runs `tract` (the model of `index`, or its measuring copy when Scan body values are requested)
-/// on every sample, then every If branch with requested values, outermost first; `requests` are
-/// tensor names per graph index; `what` names the model in errors. An error of the main run is
-/// an error; a branch or body that cannot be captured gives its reason.
+/// Runs `runnable` (the model of `index`, or its measuring copy when Scan body values are
+/// requested) on every sample, then every If branch with requested values, outermost first;
+/// `requests` are tensor names per graph index; `what` names the model in errors. Values of Loop
+/// and function bodies are read from the main run, at every iteration and call. An error of the
+/// main run is an error; a branch or body that cannot be captured gives its reason.
 pub fn capture(
     index: &ModelIndex,
-    tract: &TractModel,
+    runnable: &Runnable,
     samples: &[Sample],
     mut requests: BTreeMap<usize, BTreeSet<String>>,
     what: &str,
     ceiling: u64,
 ) -> Result<Captures> {
+    let tract = &runnable.tract;
+    let mut failed: HashMap<usize, String> = HashMap::new();
+    let mut unrolled: Vec<(usize, Vec<Renamed>)> = Vec::new();
+    let mut through_bodies: BTreeSet<String> = BTreeSet::new();
+    for g in requests.keys().copied().collect::<Vec<_>>() {
+        let Some(instances) = runnable.bodies.of(g) else {
+            continue;
+        };
+        let asks = requests.remove(&g).unwrap_or_default();
+        match instances.clone().and_then(|i| read_names(tract, &i, &asks)) {
+            Ok(names) => {
+                through_bodies.extend(names.iter().flatten().map(|(_, copy)| copy.clone()));
+                unrolled.push((g, names));
+            }
+            Err(why) => {
+                failed.insert(g, why.clone());
+            }
+        }
+    }
     let scan_bodies: Vec<usize> = requests
         .keys()
         .copied()
@@ -132,9 +163,9 @@ pub fn capture(
         lifts.insert(g, lift);
     }
     let inputs: Vec<&str> = tract.inputs().iter().map(|i| i.name.as_str()).collect();
-    let extra: Vec<String> = requests
-        .remove(&0)
-        .unwrap_or_default()
+    let mut extra = requests.remove(&0).unwrap_or_default();
+    extra.extend(through_bodies);
+    let extra: Vec<String> = extra
         .into_iter()
         .filter(|n| !inputs.contains(&n.as_str()))
         .collect();
@@ -151,8 +182,32 @@ pub fn capture(
     };
     let mut captures = Captures {
         main,
-        branches: HashMap::new(),
+        branches: failed.into_iter().map(|(g, why)| (g, Err(why))).collect(),
+        notes: HashMap::new(),
     };
+    for (g, names) in unrolled {
+        let values = captures
+            .main
+            .iter()
+            .flat_map(|v| {
+                names.iter().map(move |instance| {
+                    Some(
+                        instance
+                            .iter()
+                            .filter_map(|(body, copy)| {
+                                let t = v.get(copy)?;
+                                Some((body.clone(), NamedTensor::new(body, t.tensor.clone())))
+                            })
+                            .collect(),
+                    )
+                })
+            })
+            .collect();
+        captures
+            .notes
+            .insert(g, instances_note(index, g, names.len()));
+        captures.branches.insert(g, Ok(values));
+    }
     for (g, asks) in &scans {
         let values = match &scan_failure {
             Some(why) => Err(format!(
@@ -177,6 +232,50 @@ pub fn capture(
         captures.branches.insert(g, values);
     }
     Ok(captures)
+}
+
+/// (body name, name in the runnable copy) of each value asked of one instance of a body.
+type Renamed = Vec<(String, String)>;
+
+/// Per instance of a Loop or function body, each of `asks` with its name in the runnable copy;
+/// an error when tract does not compute one of them.
+fn read_names(
+    tract: &TractModel,
+    instances: &[Instance],
+    asks: &BTreeSet<String>,
+) -> Result<Vec<Renamed>, String> {
+    instances
+        .iter()
+        .map(|instance| {
+            asks.iter()
+                .map(|ask| {
+                    let copy = instance.get(ask).cloned().unwrap_or_else(|| ask.clone());
+                    let known = tract.outlets.contains_key(&copy)
+                        || tract.inputs().iter().any(|i| i.name == copy);
+                    if known {
+                        Ok((ask.clone(), copy))
+                    } else {
+                        Err(format!(
+                            "'{ask}' is not computed by the copy tract runs (as '{copy}')"
+                        ))
+                    }
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// How a body's figures combine: every iteration or call counts as one more sample.
+fn instances_note(index: &ModelIndex, g: usize, n: usize) -> String {
+    let graph = &index.graphs[g];
+    let what = match graph.kind {
+        GraphKind::Function { .. } => "call(s) from the main graph",
+        _ => "iteration(s) per sample",
+    };
+    format!(
+        "{} measured at {n} {what}: the figures cover them all, each counted as one more sample",
+        graph.path
+    )
 }
 
 /// An If branch to lift: where its inputs come from and when it runs.
@@ -306,13 +405,13 @@ impl Lift {
             ..Default::default()
         };
         let model = Model::from_proto(proto, index.model.dir().to_path_buf());
-        let tract = run::prepare(&model.encode(), Some(model.dir()))?.with_memory_ceiling(ceiling);
+        let samples: Vec<Sample> = reached.iter().map(|(_, s)| s.clone()).collect();
+        let tract = runnable::load(&model, &samples, ceiling)?;
         let extra: Vec<String> = asks
             .iter()
             .filter(|n| !self.inputs.contains(n))
             .cloned()
             .collect();
-        let samples: Vec<Sample> = reached.iter().map(|(_, s)| s.clone()).collect();
         let values = capture::run_samples(&tract, &samples, &extra, "lifted branch")?;
         for ((s, _), v) in reached.iter().zip(values) {
             out[*s] = Some(v);
@@ -358,7 +457,7 @@ fn run_threaded(
     ceiling: u64,
 ) -> Result<Vec<Values>> {
     let copy = thread_scans(index, scans)?;
-    let tract = run::prepare(&copy.encode(), Some(copy.dir()))?.with_memory_ceiling(ceiling);
+    let tract = runnable::load(&copy, samples, ceiling)?;
     let mut extra = extra.to_vec();
     extra.extend(
         scans

@@ -443,3 +443,33 @@ fn drift_of_two_files_counts_only_the_sites_that_differ() {
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
     assert_eq!(json(&out)["verdict"], "pass");
 }
+
+#[test]
+fn batch_counts_unmeasured_models_and_exits_1() {
+    let tmp = tempfile::tempdir().unwrap();
+    let out_dir = tmp.path().join("out");
+    let out = actswap(&[
+        "batch",
+        repo("sample-models/door-chime-keywords.onnx")
+            .to_str()
+            .unwrap(),
+        "-o",
+        path(&out_dir),
+        "--to",
+        "silu=hard_swish",
+        "--dim",
+        "batch=1",
+        "--dist",
+        "uniform",
+        "--range",
+        "-2,-1",
+        "--no-latency",
+        "--json",
+    ]);
+    assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
+    let v = json(&out);
+    assert_eq!(v["models"][0]["verdict"], "unmeasured", "{v:#}");
+    assert_eq!(v["totals"]["unmeasured"], 1, "{v:#}");
+    // Written only on pass.
+    assert!(v["models"][0]["output"].is_null(), "{v:#}");
+}

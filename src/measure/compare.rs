@@ -11,9 +11,10 @@
 //!   original site, isolated, both fed the very tensor the original site received. Both sides go
 //!   through the same isolation and the same tract optimizer, so the difference is the swap's
 //!   own error; `isolation_max_abs` checks the isolated original against its value in the full
-//!   model. A site inside a Loop body, a local function, or a Scan body below a branch or
-//!   another body is reported as not measured, with the reason ([`super::subgraphs::reach`]); a
-//!   site in a branch the samples never take, as not reached.
+//!   model. A site in a Loop body of the main graph or in a local function is measured at every
+//!   iteration or call of the copy tract runs ([`super::runnable`]); a site in a Scan or Loop
+//!   body below a branch or another body is reported as not measured, with the reason
+//!   ([`super::subgraphs::reach`]); a site in a branch the samples never take, as not reached.
 //! - **propagated drift**: the site's output tensor in the rewritten model against the original
 //!   model (upstream changes included), on the samples where both models reach it.
 //! - the observed input range and the catalogue's worst-case error of (kind_a, params_a) vs

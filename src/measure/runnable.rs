@@ -4,6 +4,7 @@
 //! at every iteration and every call. A model with neither runs as it is.
 
 use std::collections::HashMap;
+use std::path::Path;
 
 use anyhow::{Context, Result, bail};
 
@@ -52,38 +53,7 @@ pub fn prepare(index: &ModelIndex, samples: &[Sample], ceiling: u64) -> Result<R
     }
     let mut copy = proto.clone();
     let mut bodies = HashMap::new();
-    let mut shift = 0isize;
-    for (j, at) in loops.into_iter().enumerate() {
-        let now = at
-            .checked_add_signed(shift)
-            .context("unrolling moved a Loop")?;
-        let graph = copy.graph.as_ref().context("the model has no graph")?;
-        let node = &graph.node[now];
-        let name = node.name().to_string();
-        let fail = |why: String| {
-            anyhow::anyhow!(
-                "Loop node '{name}' cannot run: {why}; tract {TRACT_VERSION} has no Loop op, and \
-                 a Loop is unrolled only when its condition is constant true and its trip count \
-                 is known before running (`scan` and `swap` still work)"
-            )
-        };
-        unroll::check(graph, node).map_err(fail)?;
-        let trips = trip_count(&copy, model.dir(), now, samples, ceiling)
-            .map_err(|e| fail(format!("{e:#}")))?;
-        let body_len = body_nodes(&graph.node[now]);
-        if trips.saturating_mul(body_len.max(1)) > MAX_UNROLLED_NODES {
-            return Err(fail(format!(
-                "{trips} iterations of {body_len} nodes exceed the {MAX_UNROLLED_NODES} nodes \
-                 an unrolled copy may hold"
-            )));
-        }
-        let opset = default_opset(&copy);
-        let tag = fresh_tag(&copy, j);
-        let graph = copy.graph.as_mut().context("the model has no graph")?;
-        let before = graph.node.len();
-        let instances =
-            unroll::unroll(graph, now, trips, &tag, opset).map_err(|e| fail(format!("{e:#}")))?;
-        shift += graph.node.len() as isize - before as isize;
+    for (at, instances) in unroll_loops(&mut copy, model.dir(), samples, ceiling)? {
         if let Some(g) = loop_body_graph(index, at) {
             bodies.insert(g, Ok(instances));
         }
@@ -111,6 +81,8 @@ pub fn prepare(index: &ModelIndex, samples: &[Sample], ceiling: u64) -> Result<R
             bodies.insert(g, instances);
         }
         copy = inlined.proto;
+        // Loops that were inside function bodies: their values are not read.
+        unroll_loops(&mut copy, model.dir(), samples, ceiling)?;
     } else {
         copy.functions.clear();
     }
@@ -120,6 +92,52 @@ pub fn prepare(index: &ModelIndex, samples: &[Sample], ceiling: u64) -> Result<R
         tract,
         bodies: Bodies(bodies),
     })
+}
+
+/// Unrolls every Loop of `proto`'s main graph; per Loop, its node index before any unrolling and
+/// the name maps of its iterations.
+fn unroll_loops(
+    proto: &mut ModelProto,
+    dir: &Path,
+    samples: &[Sample],
+    ceiling: u64,
+) -> Result<Vec<(usize, Vec<Instance>)>> {
+    let mut unrolled = Vec::new();
+    let mut shift = 0isize;
+    for (j, at) in main_loops(proto).into_iter().enumerate() {
+        let now = at
+            .checked_add_signed(shift)
+            .context("unrolling moved a Loop")?;
+        let graph = proto.graph.as_ref().context("the model has no graph")?;
+        let node = &graph.node[now];
+        let name = node.name().to_string();
+        let fail = |why: String| {
+            anyhow::anyhow!(
+                "Loop node '{name}' cannot run: {why}; tract {TRACT_VERSION} has no Loop op, and \
+                 a Loop is unrolled only when its condition is constant true and its trip count \
+                 is known before running (`scan` and `swap` still work)"
+            )
+        };
+        unroll::check(graph, node).map_err(fail)?;
+        let trips =
+            trip_count(proto, dir, now, samples, ceiling).map_err(|e| fail(format!("{e:#}")))?;
+        let body_len = body_nodes(&graph.node[now]);
+        if trips.saturating_mul(body_len.max(1)) > MAX_UNROLLED_NODES {
+            return Err(fail(format!(
+                "{trips} iterations of {body_len} nodes exceed the {MAX_UNROLLED_NODES} nodes \
+                 an unrolled copy may hold"
+            )));
+        }
+        let opset = default_opset(proto);
+        let tag = fresh_tag(proto, j);
+        let graph = proto.graph.as_mut().context("the model has no graph")?;
+        let before = graph.node.len();
+        let instances =
+            unroll::unroll(graph, now, trips, &tag, opset).map_err(|e| fail(format!("{e:#}")))?;
+        shift += graph.node.len() as isize - before as isize;
+        unrolled.push((at, instances));
+    }
+    Ok(unrolled)
 }
 
 /// The tract model of `model` as [`prepare`] makes it, without the body maps.
@@ -194,7 +212,7 @@ fn fresh_tag(proto: &ModelProto, j: usize) -> String {
 /// give the same count.
 fn trip_count(
     proto: &ModelProto,
-    dir: &std::path::Path,
+    dir: &Path,
     at: usize,
     samples: &[Sample],
     ceiling: u64,

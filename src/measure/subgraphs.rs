@@ -1,5 +1,5 @@
-//! Values computed inside If branches and Scan bodies, so that sites there get drift like
-//! top-level sites.
+//! Values computed inside If branches, Scan and Loop bodies and local functions, so that sites
+//! there get drift like top-level sites.
 //!
 //! **If branches.** tract runs an If branch as a model of its own and keeps none of its values,
 //! so a branch that holds a measured site is lifted into a model of its own, in memory only: the
@@ -11,9 +11,13 @@
 //! **Scan bodies of the main graph.** The main graph runs from a measuring copy, in memory only,
 //! whose Scan nodes carry each requested body value out as one more scan output: the values of
 //! every iteration stacked along a new leading axis, which element-wise sites measure like any
-//! tensor (per-channel parameters broadcast from the right). A Scan body inside another body or
-//! a branch, Loop bodies (tract 0.23.9 has no Loop) and local functions (tract does not inline
-//! them) are not captured: [`reach`] says why.
+//! tensor (per-channel parameters broadcast from the right).
+//!
+//! **Loop bodies of the main graph and local function bodies.** tract runs a copy in which Loops
+//! are unrolled and functions inlined ([`super::runnable`]); a body value is read there at every
+//! iteration or call, and each iteration or call counts as one more sample. A Scan or Loop body
+//! inside another body or a branch, and branches or bodies inside a function, are not captured:
+//! [`reach`] says why.
 
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 

@@ -344,3 +344,61 @@ fn a_loop_whose_body_decides_when_to_stop_is_refused_in_one_line() {
     }
     assert_eq!(err.lines().count(), 1, "{err}");
 }
+
+#[test]
+fn the_written_conversion_keeps_its_functions_and_loop() {
+    // Inlining and unrolling touch only the copy tract runs (lossless rule: a rewrite changes
+    // only its sites).
+    let tmp = tempfile::tempdir().unwrap();
+    for (id, keeps) in [(KILN, "functions"), (TIDE, "Loop")] {
+        let out = tmp.path().join(format!("{id}.onnx"));
+        let input = dir(id).join("inputs/b2-s6/x.npy");
+        let run = actswap(&[
+            "audit",
+            dir(id).join("model.onnx").to_str().unwrap(),
+            "--to",
+            "silu=hard_swish",
+            "--input",
+            &format!("x={}", input.display()),
+            "--no-latency",
+            "--write-failing",
+            "-o",
+            out.to_str().unwrap(),
+        ]);
+        assert!(run.status.code().is_some_and(|c| c < 2), "{}", stderr(&run));
+        let written = Model::load(&out).unwrap();
+        let original = load(id);
+        let proto = written.proto();
+        assert_eq!(
+            proto.functions.len(),
+            original.proto().functions.len(),
+            "{keeps}"
+        );
+        let loops = |p: &actswap::onnx::proto::ModelProto| {
+            p.graph
+                .as_ref()
+                .unwrap()
+                .node
+                .iter()
+                .filter(|n| n.op_type() == "Loop")
+                .count()
+        };
+        assert_eq!(loops(proto), loops(original.proto()), "{keeps}");
+    }
+}
+
+#[test]
+fn samples_that_disagree_on_the_trip_count_are_refused_by_name() {
+    let model = load(TIDE);
+    let samples: Vec<Sample> = SETS.iter().map(|s| sample(TIDE, s)).collect();
+    let err = format!(
+        "{:#}",
+        compare_models(&model, &model, &samples, &no_latency())
+            .err()
+            .unwrap()
+    );
+    assert!(
+        err.contains("trip count differs between samples (6, 3)") && err.contains("Loop node"),
+        "{err}"
+    );
+}

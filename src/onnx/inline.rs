@@ -14,7 +14,7 @@
 //! Calls inside bodies are inlined in turn. Each call records where its body's values went, so
 //! values inside a function can be read at every call ([`Call`]).
 
-use std::collections::{HashMap, HashSet};
+use std::collections::{BTreeSet, HashMap};
 
 use anyhow::{Result, bail};
 
@@ -51,7 +51,7 @@ pub fn inline_functions(proto: &ModelProto) -> Result<Option<Inlined>> {
     }
     let mut copy = proto.clone();
     let functions = std::mem::take(&mut copy.functions);
-    let mut taken = HashSet::new();
+    let mut taken = BTreeSet::new();
     collect_names(&copy, &mut taken);
     let mut inliner = Inliner {
         functions: &functions,
@@ -78,7 +78,7 @@ struct Inliner<'f> {
     opsets: Vec<OperatorSetIdProto>,
     calls: Vec<Call>,
     /// Every value and node name in use, so new ones never clash.
-    taken: HashSet<String>,
+    taken: BTreeSet<String>,
 }
 
 impl Inliner<'_> {
@@ -183,7 +183,12 @@ impl Inliner<'_> {
     /// A prefix no name of the model starts with: `f{k}|NAME|`, salted on a clash.
     fn fresh_prefix(&mut self, k: usize, name: &str) -> String {
         let mut prefix = format!("f{k}|{name}|");
-        while self.taken.iter().any(|t| t.starts_with(&prefix)) {
+        while self
+            .taken
+            .range(prefix.clone()..)
+            .next()
+            .is_some_and(|t| t.starts_with(&prefix))
+        {
             prefix.insert(0, '_');
         }
         self.taken.insert(prefix.clone());
@@ -272,8 +277,8 @@ fn resolve_attributes(attrs: &mut Vec<AttributeProto>, call: &NodeProto, functio
 }
 
 /// Every value and node name of the model's graphs (function bodies aside).
-fn collect_names(proto: &ModelProto, out: &mut HashSet<String>) {
-    fn graph(g: &GraphProto, out: &mut HashSet<String>) {
+fn collect_names(proto: &ModelProto, out: &mut BTreeSet<String>) {
+    fn graph(g: &GraphProto, out: &mut BTreeSet<String>) {
         out.extend(
             g.input
                 .iter()

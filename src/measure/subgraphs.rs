@@ -8,16 +8,17 @@
 //! enclosing graph computed on that sample; on the other samples the site is not reached. Branches
 //! nest to any depth (a branch's enclosing graph may itself be a lifted branch).
 //!
-//! **Scan bodies of the main graph.** The main graph runs from a measuring copy, in memory only,
-//! whose Scan nodes carry each requested body value out as one more scan output: the values of
-//! every iteration stacked along a new leading axis, which element-wise sites measure like any
-//! tensor (per-channel parameters broadcast from the right).
+//! **Scan bodies of the main graph and of If branches.** The main graph (or the lifted branch)
+//! runs from a measuring copy, in memory only, whose Scan nodes carry each requested body value
+//! out as one more scan output: the values of every iteration stacked along a new leading axis,
+//! which element-wise sites measure like any tensor (per-channel parameters broadcast from the
+//! right).
 //!
 //! **Loop bodies of the main graph and local function bodies.** tract runs a copy in which Loops
 //! are unrolled and functions inlined ([`super::runnable`]); a body value is read there at every
-//! iteration or call, and each iteration or call counts as one more sample. A Scan or Loop body
-//! inside another body or a branch, and branches or bodies inside a function, are not captured:
-//! [`reach`] says why.
+//! iteration or call, and each iteration or call counts as one more sample. A body inside a Scan
+//! or Loop body, a Loop body inside a branch, and branches or bodies inside a function are not
+//! captured: [`reach`] says why.
 
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 
@@ -33,7 +34,8 @@ use crate::onnx::{GraphKind, Model, ModelIndex};
 use crate::run::{NamedTensor, Sample, TractModel};
 
 /// Whether values of graph `site_graph` can be captured: the main graph, If branches all the way
-/// up, a Scan or Loop body of the main graph, or a local function's body; the reason when not.
+/// up, a Scan body there, a Loop body of the main graph, or a local function's body; the reason
+/// when not.
 pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
     let mut g = site_graph;
     loop {
@@ -58,9 +60,15 @@ pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
                 match op {
                     "If" => g = parent,
                     "Scan" | "Loop" if g == site_graph && parent == 0 => return Ok(()),
+                    "Scan" if g == site_graph => g = parent,
+                    "Loop" if g == site_graph => {
+                        return Err(format!(
+                            "the site is inside the body of Loop node '{node}', which is not in the main graph; only Loop bodies of the main graph are unrolled"
+                        ));
+                    }
                     "Scan" | "Loop" => {
                         return Err(format!(
-                            "the site is inside the body of {op} node '{node}', which is not in the main graph; only If branches and Scan and Loop bodies of the main graph are captured"
+                            "the site is inside a graph nested in the body of {op} node '{node}'; only If branches, Scan bodies in them, and Scan and Loop bodies of the main graph are captured"
                         ));
                     }
                     _ => {
@@ -141,15 +149,20 @@ pub fn capture(
             }
         }
     }
-    let scan_bodies: Vec<usize> = requests
-        .keys()
-        .copied()
-        .filter(|&g| is_scan_body(index, g))
-        .collect();
-    let scans: Vec<(usize, BTreeSet<String>)> = scan_bodies
-        .into_iter()
-        .map(|g| (g, requests.remove(&g).unwrap_or_default()))
-        .collect();
+    let mut scans: Vec<Threaded> = Vec::new();
+    let mut branch_scans: BTreeMap<usize, Vec<Threaded>> = BTreeMap::new();
+    for g in requests.keys().copied().collect::<Vec<_>>() {
+        let Some(parent) = scan_parent(index, g) else {
+            continue;
+        };
+        let asks = (g, requests.remove(&g).unwrap_or_default());
+        if parent == 0 {
+            scans.push(asks);
+        } else {
+            requests.entry(parent).or_default();
+            branch_scans.entry(parent).or_default().push(asks);
+        }
+    }
     let mut lifts: BTreeMap<usize, Result<Lift, String>> = BTreeMap::new();
     let mut pending: BTreeSet<usize> = requests.keys().copied().filter(|&g| g != 0).collect();
     while let Some(g) = pending.pop_last() {
@@ -226,13 +239,24 @@ pub fn capture(
         captures.branches.insert(*g, values);
     }
     for (g, lift) in lifts {
+        let inner = branch_scans.remove(&g).unwrap_or_default();
         let values = lift.and_then(|l| {
             let parent = captures.at(l.parent)?;
             let asks = requests.remove(&g).unwrap_or_default();
-            l.run(index, &parent, &asks, ceiling)
+            l.run(index, &parent, &asks, &inner, ceiling)
                 .with_context(|| format!("{what}, {}", index.graphs[g].path))
                 .map_err(|e| format!("{e:#}"))
         });
+        for (sg, asks) in &inner {
+            let body = match &values {
+                Ok(per_sample) => Ok(per_sample
+                    .iter()
+                    .map(|v| v.as_ref().map(|v| unstacked(v, asks)))
+                    .collect()),
+                Err(why) => Err(why.clone()),
+            };
+            captures.branches.insert(*sg, body);
+        }
         captures.branches.insert(g, values);
     }
     Ok(captures)
@@ -363,6 +387,7 @@ impl Lift {
         index: &ModelIndex,
         parent: &[Option<&Values>],
         asks: &BTreeSet<String>,
+        scans: &[Threaded],
         ceiling: u64,
     ) -> Result<Vec<Option<Values>>> {
         let mut reached = Vec::new();
@@ -391,6 +416,7 @@ impl Lift {
             return Ok(out);
         }
         let mut graph = self.graph.clone();
+        thread(&mut graph, index, scans)?;
         graph.input = (0..self.inputs.len())
             .map(|i| {
                 let decl = InputDecl::of(reached.iter().map(|(_, s)| &s[i].tensor))?;
@@ -415,6 +441,7 @@ impl Lift {
             .iter()
             .filter(|n| !self.inputs.contains(n))
             .cloned()
+            .chain(threaded_names(scans))
             .collect();
         let values = capture::run_samples(&tract, &samples, &extra, "lifted branch")?;
         for ((s, _), v) in reached.iter().zip(values) {
@@ -463,11 +490,7 @@ fn run_threaded(
     let copy = thread_scans(index, scans)?;
     let tract = runnable::load(&copy, samples, ceiling)?;
     let mut extra = extra.to_vec();
-    extra.extend(
-        scans
-            .iter()
-            .flat_map(|(_, asks)| asks.iter().map(|n| stacked(n))),
-    );
+    extra.extend(threaded_names(scans));
     capture::run_samples(&tract, samples, &extra, what)
 }
 
@@ -481,16 +504,25 @@ fn unstacked(values: &Values, asks: &BTreeSet<String>) -> Values {
         .collect()
 }
 
-/// Whether graph `g` is the body of a Scan node of the main graph.
-fn is_scan_body(index: &ModelIndex, g: usize) -> bool {
+/// A Scan body and the values to carry out of it.
+type Threaded = (usize, BTreeSet<String>);
+
+/// The names the threaded Scans give their carried values under, iterations stacked.
+fn threaded_names(scans: &[Threaded]) -> impl Iterator<Item = String> + '_ {
+    scans
+        .iter()
+        .flat_map(|(_, asks)| asks.iter().map(|n| stacked(n)))
+}
+
+/// The graph holding the Scan node whose body is graph `g`, when it is one.
+fn scan_parent(index: &ModelIndex, g: usize) -> Option<usize> {
     let graph = &index.graphs[g];
-    graph.parent == Some(0)
-        && graph
-            .location
-            .steps
-            .last()
-            .and_then(|&(n, _, _)| index.graphs[0].nodes.get(n))
-            .is_some_and(|n| n.op_type() == "Scan")
+    let parent = graph.parent?;
+    if graph.location.function.is_some() {
+        return None;
+    }
+    let &(n, _, _) = graph.location.steps.last()?;
+    (index.graphs[parent].nodes.get(n)?.op_type() == "Scan").then_some(parent)
 }
 
 /// The name to read body value `name` from. tract reshapes a body output in place to stack it,
@@ -515,18 +547,26 @@ fn unhook_output(body: &mut GraphProto, name: &str) -> String {
     }
 }
 
-/// A copy of the model whose Scan nodes carry the requested body values out as extra scan
-/// outputs (each through an Identity, so body inputs and outer values work too).
-fn thread_scans(index: &ModelIndex, scans: &[(usize, BTreeSet<String>)]) -> Result<Model> {
+/// A copy of the model whose main-graph Scan nodes carry the requested body values out
+/// ([`thread`]).
+fn thread_scans(index: &ModelIndex, scans: &[Threaded]) -> Result<Model> {
     let mut proto = index.model.proto().clone();
     let main = proto.graph.as_mut().context("the model has no graph")?;
+    thread(main, index, scans)?;
+    Ok(Model::from_proto(proto, index.model.dir().to_path_buf()))
+}
+
+/// Makes the Scan nodes of `graph` (the graph holding them, or a lifted copy of it) carry the
+/// requested body values out as extra scan outputs (each through an Identity, so body inputs
+/// and outer values work too).
+fn thread(graph: &mut GraphProto, index: &ModelIndex, scans: &[Threaded]) -> Result<()> {
     for (g, asks) in scans {
         let &(n, a, _) = index.graphs[*g]
             .location
             .steps
             .last()
             .context("no node holds the body")?;
-        let scan = &mut main.node[n];
+        let scan = graph.node.get_mut(n).context("the Scan node is missing")?;
         let body = scan.attribute[a]
             .g
             .as_mut()
@@ -555,5 +595,5 @@ fn thread_scans(index: &ModelIndex, scans: &[(usize, BTreeSet<String>)]) -> Resu
             attr.ints.extend(std::iter::repeat_n(0, asks.len()));
         }
     }
-    Ok(Model::from_proto(proto, index.model.dir().to_path_buf()))
+    Ok(())
 }

@@ -196,29 +196,46 @@ impl Judgement {
 }
 
 /// Every rewritten site without both a local and a propagated drift figure, each with why
-/// (`site (kind) in graph: reason`). Rewritten: the plan's rewrites; without a plan (two files
-/// compared), the pairs whose kind, parameters or ops differ. A site left as it was never counts.
+/// (`site (kind) in graph: reason`). Rewritten: the plan's rewrites (one the comparison left out
+/// counts too); without a plan (two files compared), the pairs whose kind, parameters or ops
+/// differ. A site left as it was never counts.
 fn unmeasured(plan: Option<&Plan>, drift: &DriftReport) -> Vec<String> {
-    let rewritten = |s: &SiteDrift| match plan {
+    let why = |s: &SiteDrift| -> Option<String> {
+        if s.local.is_some() && s.propagated.is_some() {
+            return None;
+        }
+        let note = s
+            .notes
+            .iter()
+            .find(|n| n.contains("not measured"))
+            .map_or("no figure was computed", String::as_str);
+        Some(format!(
+            "{} ({}) in {}: {note}",
+            s.id_a, s.kind_a.id, s.graph
+        ))
+    };
+    match plan {
         Some(plan) => plan
             .sites
             .iter()
-            .any(|p| p.site.id == s.id_a && matches!(p.action, Action::Rewrite(_))),
-        None => !std::ptr::eq(s.kind_a, s.kind_b) || s.params_a != s.params_b || s.ops_a != s.ops_b,
-    };
-    drift
-        .sites
-        .iter()
-        .filter(|s| rewritten(s) && (s.local.is_none() || s.propagated.is_none()))
-        .map(|s| {
-            let why = s
-                .notes
-                .iter()
-                .find(|n| n.contains("not measured"))
-                .map_or("no figure was computed", String::as_str);
-            format!("{} ({}) in {}: {why}", s.id_a, s.kind_a.id, s.graph)
-        })
-        .collect()
+            .filter(|p| matches!(p.action, Action::Rewrite(_)))
+            .filter_map(|p| match drift.sites.iter().find(|s| s.id_a == p.site.id) {
+                Some(s) => why(s),
+                None => Some(format!(
+                    "{} ({}) in {}: not compared",
+                    p.site.id, p.site.kind.id, p.site.graph
+                )),
+            })
+            .collect(),
+        None => drift
+            .sites
+            .iter()
+            .filter(|s| {
+                !std::ptr::eq(s.kind_a, s.kind_b) || s.params_a != s.params_b || s.ops_a != s.ops_b
+            })
+            .filter_map(why)
+            .collect(),
+    }
 }
 
 /// Per-model figures. Drift figures are `None` when nothing was measured (no site, or every

@@ -208,6 +208,7 @@ fn unmeasured(plan: Option<&Plan>, drift: &DriftReport) -> Vec<String> {
             .notes
             .iter()
             .find(|n| n.contains("not measured"))
+            .or_else(|| s.notes.first())
             .map_or("no figure was computed", String::as_str);
         Some(format!(
             "{} ({}) in {}: {note}",

@@ -402,3 +402,58 @@ fn samples_that_disagree_on_the_trip_count_are_refused_by_name() {
         "{err}"
     );
 }
+
+#[test]
+fn a_loop_inside_a_loop_body_is_unrolled_in_turn() {
+    // The outer Loop runs twice; its body runs the 3-iteration Loop above on its carried value,
+    // so v0 + 2 * 3 comes out.
+    let inner_model = loop_model(false);
+    let mut proto = inner_model.proto().clone();
+    let graph = proto.graph.as_mut().unwrap();
+    let mut inner = graph.node.remove(0);
+    inner.name = Some("inner".into());
+    inner.input = vec!["trips".into(), String::new(), "w_in".into()];
+    inner.output = vec!["w_out".into(), "inner_stacked".into()];
+    let f = |name: &str| value(name, DataType::Float, &[Dim::Size(2)]);
+    let outer_body = GraphProto {
+        name: Some("outer_body".into()),
+        node: vec![
+            inner,
+            node(
+                "Identity",
+                "pass",
+                &["outer_cond"],
+                &["outer_cond_out"],
+                vec![],
+            ),
+        ],
+        input: vec![
+            value("j", DataType::Int64, &[]),
+            value("outer_cond", DataType::Bool, &[]),
+            f("w_in"),
+        ],
+        output: vec![value("outer_cond_out", DataType::Bool, &[]), f("w_out")],
+        ..Default::default()
+    };
+    graph.node = vec![node(
+        "Loop",
+        "outer",
+        &["outer_trips", "", "v0"],
+        &["v_final"],
+        vec![attr_g("body", outer_body)],
+    )];
+    graph.initializer.push(int64("outer_trips", 2));
+    graph.output.truncate(1);
+    let model = Model::from_proto(proto, PathBuf::new());
+    let samples = vec![vec![NamedTensor::new(
+        "v0",
+        Tensor::from_shape(&[2], &[1.0f32, 2.0]).unwrap(),
+    )]];
+    let tract = runnable::load(&model, &samples, DEFAULT_MEMORY_CEILING).unwrap();
+    let values = run_samples(&tract, &samples, &[], "nested loops").unwrap();
+    assert_close(
+        &values[0]["v_final"],
+        &Tensor::from_shape(&[2], &[7.0f32, 8.0]).unwrap(),
+        "v_final",
+    );
+}

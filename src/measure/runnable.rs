@@ -14,6 +14,9 @@ use crate::onnx::proto::{GraphProto, ModelProto, ValueInfoProto};
 use crate::onnx::{GraphKind, Model, ModelIndex, unroll};
 use crate::run::{self, Sample, TRACT_VERSION, TractModel};
 
+/// Loops nested deeper than this are left to tract, which refuses them.
+const MAX_LOOP_DEPTH: usize = 8;
+
 /// Unrolled copies of all Loops together may hold at most this many nodes.
 const MAX_UNROLLED_NODES: usize = 1_000_000;
 
@@ -81,10 +84,16 @@ pub fn prepare(index: &ModelIndex, samples: &[Sample], ceiling: u64) -> Result<R
             bodies.insert(g, instances);
         }
         copy = inlined.proto;
-        // Loops that were inside function bodies: their values are not read.
-        unroll_loops(&mut copy, model.dir(), samples, ceiling)?;
     } else {
         copy.functions.clear();
+    }
+    // Loops that were inside Loop or function bodies are in the main graph now: unrolled in
+    // turn, their values not read.
+    for _ in 0..MAX_LOOP_DEPTH {
+        if main_loops(&copy).is_empty() {
+            break;
+        }
+        unroll_loops(&mut copy, model.dir(), samples, ceiling)?;
     }
     let copy = Model::from_proto(copy, model.dir().to_path_buf());
     let tract = run::prepare(&copy.encode(), Some(copy.dir()))?.with_memory_ceiling(ceiling);

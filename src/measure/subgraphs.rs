@@ -63,7 +63,7 @@ pub fn reach(index: &ModelIndex, site_graph: usize) -> Result<(), String> {
                     "Scan" if g == site_graph => g = parent,
                     "Loop" if g == site_graph => {
                         return Err(format!(
-                            "the site is inside the body of Loop node '{node}', which is not in the main graph; only Loop bodies of the main graph are unrolled"
+                            "the site is inside the body of Loop node '{node}', which is not in the main graph; nested Loops run unrolled, but only the values of Loop bodies of the main graph are read"
                         ));
                     }
                     "Scan" | "Loop" => {

@@ -5,16 +5,18 @@
 //! `audit`, from [`super::pairs::by_output`] when two files are compared. Each model runs once
 //! per sample with every pair's input and output requested as extra outputs; a site inside an If
 //! branch is captured by running the branch lifted into a model of its own, on the samples where
-//! the If takes it, and a site in a Scan body of the main graph by a measuring copy that carries
-//! its values out of the Scan, every iteration stacked ([`super::subgraphs`]). Per pair:
+//! the If takes it, and a site in a Scan body (of the main graph or of a branch) by a measuring
+//! copy that carries its values out of the Scan, every iteration stacked ([`super::subgraphs`]).
+//! Per pair:
 //! - **local drift**: the rewritten model's site, isolated ([`super::isolate`]), against the
 //!   original site, isolated, both fed the very tensor the original site received. Both sides go
 //!   through the same isolation and the same tract optimizer, so the difference is the swap's
 //!   own error; `isolation_max_abs` checks the isolated original against its value in the full
 //!   model. A site in a Loop body of the main graph or in a local function is measured at every
-//!   iteration or call of the copy tract runs ([`super::runnable`]); a site in a Scan or Loop
-//!   body below a branch or another body is reported as not measured, with the reason
-//!   ([`super::subgraphs::reach`]); a site in a branch the samples never take, as not reached.
+//!   iteration or call of the copy tract runs ([`super::runnable`]); a site in a graph nested in
+//!   a Scan or Loop body, or in a Loop body inside a branch, is reported as not measured, with
+//!   the reason ([`super::subgraphs::reach`]); a site in a branch the samples never take, as not
+//!   reached.
 //! - **propagated drift**: the site's output tensor in the rewritten model against the original
 //!   model (upstream changes included), on the samples where both models reach it.
 //! - the observed input range and the catalogue's worst-case error of (kind_a, params_a) vs

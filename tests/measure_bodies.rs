@@ -457,3 +457,67 @@ fn a_loop_inside_a_loop_body_is_unrolled_in_turn() {
         "v_final",
     );
 }
+
+#[test]
+fn a_function_called_only_inside_a_branch_says_why_it_is_not_measured() {
+    // SiLU as a local function (x * sigmoid(x)), called in an If's then-branch only.
+    let function = FunctionProto {
+        name: Some("Act".into()),
+        domain: Some("local.fns".into()),
+        input: vec!["x".into()],
+        output: vec!["y".into()],
+        node: vec![
+            node("Sigmoid", "s", &["x"], &["s"], vec![]),
+            node("Mul", "m", &["x", "s"], &["y"], vec![]),
+        ],
+        opset_import: vec![opset("", 17)],
+        ..Default::default()
+    };
+    let mut call = node("Act", "act", &["x"], &["t"], vec![]);
+    call.domain = Some("local.fns".into());
+    let f = |name: &str| value(name, DataType::Float, &[Dim::Size(3)]);
+    let then = GraphProto {
+        name: Some("then".into()),
+        node: vec![call],
+        output: vec![f("t")],
+        ..Default::default()
+    };
+    let other = GraphProto {
+        name: Some("else".into()),
+        node: vec![node("Neg", "neg", &["x"], &["n"], vec![])],
+        output: vec![f("n")],
+        ..Default::default()
+    };
+    let graph = GraphProto {
+        name: Some("guarded".into()),
+        node: vec![node(
+            "If",
+            "guard",
+            &["c"],
+            &["out"],
+            vec![attr_g("then_branch", then), attr_g("else_branch", other)],
+        )],
+        input: vec![f("x"), value("c", DataType::Bool, &[])],
+        output: vec![f("out")],
+        ..Default::default()
+    };
+    let mut proto = builder::model(graph, vec![opset("", 17), opset("local.fns", 1)], "tests");
+    proto.functions.push(function);
+    let model = Model::from_proto(proto, PathBuf::new());
+    let samples = vec![vec![
+        NamedTensor::new("x", Tensor::from_shape(&[3], &[1.0f32, -2.0, 0.5]).unwrap()),
+        NamedTensor::new("c", Tensor::from(true)),
+    ]];
+    let r = compare_models(&model, &model, &samples, &no_latency()).unwrap();
+    // The model runs (the call is inlined inside the branch) and its output is compared.
+    assert_eq!(r.outputs[0].metrics.as_ref().unwrap().max_abs, 0.0);
+    let s = r.sites.iter().find(|s| s.kind_a.id == "silu").unwrap();
+    assert!(s.local.is_none());
+    assert!(
+        s.notes
+            .iter()
+            .any(|n| n.contains("called only inside branches or bodies")),
+        "{:?}",
+        s.notes
+    );
+}

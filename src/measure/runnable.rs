@@ -61,31 +61,32 @@ pub fn prepare(index: &ModelIndex, samples: &[Sample], ceiling: u64) -> Result<R
             bodies.insert(g, Ok(instances));
         }
     }
-    if let Some(inlined) = inline_functions(&copy)? {
-        for (g, graph) in index.graphs.iter().enumerate() {
-            let (Some(f), true) = (graph.location.function, graph.location.steps.is_empty()) else {
-                continue;
-            };
-            let calls: Vec<_> = inlined.calls.iter().filter(|c| c.function == f).collect();
-            let instances = if calls.is_empty() {
-                Err(format!("{} is never called", graph.path))
-            } else if calls.iter().all(|c| !c.in_main) {
-                Err(format!(
-                    "{} is called only inside branches or bodies, whose values are not captured",
-                    graph.path
-                ))
-            } else {
-                Ok(calls
-                    .iter()
-                    .filter(|c| c.in_main)
-                    .map(|c| c.names.clone())
-                    .collect())
-            };
-            bodies.insert(g, instances);
-        }
-        copy = inlined.proto;
-    } else {
-        copy.functions.clear();
+    let inlined = inline_functions(&copy)?;
+    let calls = inlined.as_ref().map_or(&[][..], |i| i.calls.as_slice());
+    for (g, graph) in index.graphs.iter().enumerate() {
+        let (Some(f), true) = (graph.location.function, graph.location.steps.is_empty()) else {
+            continue;
+        };
+        let calls: Vec<_> = calls.iter().filter(|c| c.function == f).collect();
+        let instances = if calls.is_empty() {
+            Err(format!("{} is never called", graph.path))
+        } else if calls.iter().all(|c| !c.in_main) {
+            Err(format!(
+                "{} is called only inside branches or bodies, whose values are not captured",
+                graph.path
+            ))
+        } else {
+            Ok(calls
+                .iter()
+                .filter(|c| c.in_main)
+                .map(|c| c.names.clone())
+                .collect())
+        };
+        bodies.insert(g, instances);
+    }
+    match inlined {
+        Some(inlined) => copy = inlined.proto,
+        None => copy.functions.clear(),
     }
     // Loops that were inside Loop or function bodies are in the main graph now: unrolled in
     // turn, their values not read.

@@ -5,9 +5,14 @@
 //! parameters, range, segments, element type); the figures are for the first planning, with
 //! nothing remembered, then for the same plan again. `cargo bench --bench plan -- SITES`
 //! plans another number of sites.
+//!
+//! Swish channels share fits of SiLU over rescaled ranges; what that costs in bound is the
+//! ratio of each channel's bound to that of its own fit, over the channels of the first
+//! [`COST_SITES`] sites (own fits are slow: that is what sharing saves).
 
 use std::time::Instant;
 
+use actswap::catalog::fit;
 use actswap::catalog::{ParamValue, Params, get};
 use actswap::onnx::proto::tensor_proto::DataType;
 use actswap::plan::request::Request;
@@ -16,6 +21,8 @@ use actswap::scan::{Site, Spelling};
 use rand::{Rng, SeedableRng};
 
 const CHANNELS: usize = 64;
+/// Sites whose channels are also fitted alone, for the cost of sharing.
+const COST_SITES: usize = 4;
 
 fn sites(n: usize) -> Vec<Site> {
     let swish = get("swish").expect("swish is catalogued");
@@ -77,6 +84,35 @@ fn main() {
             first / base,
             first * 1e6 / (n * CHANNELS) as f64,
             again / base
+        );
+    }
+    sharing_cost(&sites[..COST_SITES.min(n)]);
+}
+
+/// The worst and median ratio of a channel's bound inside the range (shared fit) to that of
+/// its own fit, at 8 and 16 segments.
+fn sharing_cost(sites: &[Site]) {
+    let swish = get("swish").expect("swish is catalogued");
+    let range = fit::DEFAULT_RANGE;
+    for segments in [8, 16] {
+        let mut ratios: Vec<f64> = Vec::new();
+        for site in sites {
+            for p in site.params.as_ref().expect("swish has beta").per_channel() {
+                let elem = DataType::Float;
+                let (_, shared) = fit::fit_channel(swish, &p, range, segments, elem).expect("fit");
+                let (_, own) =
+                    fit::fit_channel_alone(swish, &p, range, segments, elem).expect("fit");
+                ratios.push(shared.in_range.value / own.in_range.value);
+            }
+        }
+        ratios.sort_by(f64::total_cmp);
+        println!(
+            "sharing at {segments} segments, {} channels: bound / own fit's bound: worst {:.4}, \
+             median {:.4}, best {:.4}",
+            ratios.len(),
+            ratios[ratios.len() - 1],
+            ratios[ratios.len() / 2],
+            ratios[0]
         );
     }
 }

@@ -1,14 +1,16 @@
 //! Scan time on generated graphs of 10k, 100k and 1M nodes. Each block is a Mul by a per-block
 //! constant (a stand-in for a layer), a SiLU (Sigmoid, Mul), an exact GELU spelled as five ops
 //! and a gating Mul(x, Sigmoid(y)). Reports the time per graph (index build and scan; the
-//! index alone in brackets) and the time ratio per doubling
+//! index alone in brackets), against a baseline measured in the same run: decoding the same
+//! graph from its serialized bytes, as every command does first. Then the time ratio per doubling
 //! of the node count (2.00 is linear). `cargo bench --bench scan -- N...` picks other sizes.
 
 mod support;
 
 use std::time::Instant;
 
-use actswap::onnx::ModelIndex;
+use actswap::onnx::{Model, ModelIndex};
+use prost::Message;
 use support::graphs::elementwise_blocks;
 
 fn main() {
@@ -22,11 +24,14 @@ fn main() {
     }
     let mut times = Vec::new();
     println!(
-        "{:>10}  {:>10}  {:>10}  {:>8}  {:>12}",
-        "nodes", "seconds", "(index)", "sites", "ns per node"
+        "{:>10}  {:>10}  {:>10}  {:>10}  {:>9}  {:>8}  {:>12}",
+        "nodes", "seconds", "(index)", "decode", "x decode", "sites", "ns per node"
     );
     for &n in &sizes {
-        let model = elementwise_blocks(n);
+        let bytes = bytes::Bytes::from(elementwise_blocks(n).proto().encode_to_vec());
+        let start = Instant::now();
+        let model = Model::from_bytes(bytes, "bench.onnx".into(), ".".into()).expect("decodes");
+        let decode = start.elapsed().as_secs_f64();
         let start = Instant::now();
         let index = ModelIndex::build(&model).expect("valid graph");
         let indexed = start.elapsed().as_secs_f64();
@@ -34,7 +39,8 @@ fn main() {
         let secs = start.elapsed().as_secs_f64();
         let per_node = secs * 1e9 / n as f64;
         println!(
-            "{n:>10}  {secs:>10.3}  {indexed:>10.3}  {:>8}  {per_node:>12.0}",
+            "{n:>10}  {secs:>10.3}  {indexed:>10.3}  {decode:>10.3}  {:>9.2}  {:>8}  {per_node:>12.0}",
+            secs / decode,
             report.sites.len()
         );
         times.push(secs);

@@ -94,6 +94,17 @@ def main():
             check("audit", audit, f"audit {model}")
             check("audit", actswap("audit", model, "--to", "silu=hard_swish", *dims, "--no-latency", "--json"),
                   f"audit --to {model}")
+        # A rewritten site no sample reaches (door-chime's then-branch SiLU, taken when
+        # mean(mfcc) > 0): verdict "unmeasured", in the audit and the batch documents.
+        unreached = ["--to", "silu=hard_swish", "--dim", "batch=1", "--dist", "uniform",
+                     "--range=-2,-1", "--no-latency", "--json"]
+        door = "sample-models/door-chime-keywords.onnx"
+        doc = actswap("audit", door, *unreached)
+        if doc["verdict"] != "unmeasured":
+            failures.append(f"audit of an unreached branch site: verdict {doc['verdict']}")
+        check("audit", doc, "audit of an unreached branch site")
+        check("batch", actswap("batch", door, "-o", os.path.join(tmp, "unreached"), *unreached),
+              "batch of an unreached branch site")
         sample_dims = set().union(*(symbolic_dims(actswap("info", m, "--json")) for m in models[:-1]))
         check("batch", actswap("batch", "sample-models", "-o", os.path.join(tmp, "converted"),
                                "--target", "piecewise-linear", *dim_flags(sample_dims), *SMALL, "--json"),

@@ -290,6 +290,7 @@ fn kinds_and_params() -> impl Strategy<Value = (&'static str, Vec<f64>)> {
         Just(("hard_swish", vec![1.0])),
         (0.2f64..4.0).prop_map(|b| ("swish", vec![(b as f32) as f64])),
         (0.1f64..3.0).prop_map(|a| ("elu", vec![(a as f32) as f64])),
+        (0.1f64..3.0).prop_map(|a| ("celu", vec![(a as f32) as f64])),
         (0.01f64..0.5).prop_map(|a| ("leaky_relu", vec![(a as f32) as f64])),
     ]
 }
@@ -313,5 +314,76 @@ proptest! {
         prop_assert!(inside <= f.bound.in_range.value, "{} vs {:?}", inside, f.bound);
         let wide = dense(&f, 0, range.lo - 100.0, range.hi + 100.0, 50_000);
         prop_assert!(wide <= f.bound.over_reals.value, "{} vs {:?}", wide, f.bound);
+    }
+}
+
+/// Swish in f64 as Ramachandran et al. 2017 write it (arXiv:1710.05941), independently of the
+/// catalogue: x * sigmoid(beta * x).
+fn swish_formula(x: f64, beta: f64) -> f64 {
+    x / (1.0 + (-beta * x).exp())
+}
+
+#[test]
+fn a_declared_change_of_scale_is_exact() {
+    // swish(x; beta) = silu(beta x) / beta (algebra on Ramachandran et al.'s formula);
+    // celu(x; alpha) = alpha * celu(x / alpha; 1) (the ONNX Celu function body).
+    for (id, values) in [
+        ("swish", vec![0.1, 0.5, 1.0, 1.702, 2.0, 7.5]),
+        ("celu", vec![0.1, 0.5, 1.0, 2.0, 7.5]),
+    ] {
+        let k = kind(id);
+        let scale = k.scale.unwrap_or_else(|| panic!("{id} declares a scale"));
+        for v in values {
+            let s = (scale.factor)(&[v]);
+            for i in 0..=400 {
+                let x = -20.0 + 40.0 * i as f64 / 400.0;
+                let direct = k.eval(x, &[v]);
+                let rescaled = k.eval(s * x, scale.base) / s;
+                assert!(
+                    (direct - rescaled).abs() <= 1e-14 * (1.0 + direct.abs()),
+                    "{id}({x}; {v}): {direct} vs {rescaled}"
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn a_shared_fit_bounds_each_channel_by_its_own_error() {
+    // Channels of one site whose rescaled ranges share a fit of SiLU: each channel's bound is
+    // computed on its own rounded constants. Reference: the swish formula in f64 on a dense
+    // grid (numpy-style evaluation), inside the range and 100 beyond each end.
+    let swish = kind("swish");
+    let betas: Vec<f64> = (0..48)
+        .map(|i| (0.5 * 4f64.powf(i as f64 / 47.0)) as f32 as f64)
+        .chain([0.3, 3.0, 1.0])
+        .collect();
+    for range in [
+        FitRange::new(-8.0, 8.0).unwrap(),
+        FitRange::new(-2.5, 6.0).unwrap(),
+    ] {
+        for segments in [4, 8, 16] {
+            for elem in [DataType::Float, DataType::Double] {
+                for &beta in &betas {
+                    let (pwl, b) = fit::fit_channel(swish, &[beta], range, segments, elem).unwrap();
+                    let err = |x: f64| (swish_formula(x, beta) - pwl.eval(x)).abs();
+                    let grid = |lo: f64, hi: f64, n: usize| {
+                        (0..=n)
+                            .map(|i| err(lo + (hi - lo) * i as f64 / n as f64))
+                            .fold(0.0, f64::max)
+                    };
+                    let inside = grid(range.lo, range.hi, 20_000);
+                    let wide = grid(range.lo - 100.0, range.hi + 100.0, 50_000);
+                    let case = format!("beta {beta}, {range}, {segments}, {elem:?}");
+                    assert!(inside <= b.in_range.value, "{case}: {inside} > {:?}", b);
+                    assert!(wide <= b.over_reals.value, "{case}: {wide} > {:?}", b);
+                    // The bound inside is the error inside (the grid's spacing aside).
+                    assert!(
+                        b.in_range.value - inside <= 1e-6,
+                        "{case}: {inside} vs {b:?}"
+                    );
+                }
+            }
+        }
     }
 }

@@ -363,3 +363,113 @@ fn prefer_applies_only_to_sites_the_target_does_not_run() {
     assert_eq!(leaky["action"], "keep", "{leaky}");
     assert_eq!(leaky["reason"], "accepted by the target");
 }
+
+/// door-chime's If (sample-models/README.md) takes its then-branch, which holds a SiLU (s3,
+/// rewritten here to hard-swish), when
+/// mean(mfcc) > 0 (ONNX operator specification, If: `then_branch` runs when the condition is
+/// true). Uniform inputs in [-2, -1] never take it; inputs in [1, 2] always do.
+fn door_chime_audit(range: &str) -> Output {
+    actswap(&[
+        "audit",
+        repo("sample-models/door-chime-keywords.onnx")
+            .to_str()
+            .unwrap(),
+        "--to",
+        "silu=hard_swish",
+        "--dim",
+        "batch=1",
+        "--dist",
+        "uniform",
+        "--range",
+        range,
+        "--samples",
+        "2",
+        "--no-latency",
+        "--json",
+    ])
+}
+
+#[test]
+fn a_rewritten_site_the_samples_never_reach_is_unmeasured_not_a_pass() {
+    let out = door_chime_audit("-2,-1");
+    assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
+    let v = json(&out);
+    assert_eq!(v["verdict"], "unmeasured", "{v:#}");
+    let reason = v["reasons"][0].as_str().unwrap();
+    assert!(
+        reason.contains("s3 (silu)") && reason.contains("give inputs that reach it"),
+        "{reason}"
+    );
+    // The ReLU of the else-branch is left as it was, so only the SiLU is named.
+    assert!(!reason.contains("s4"), "{reason}");
+}
+
+#[test]
+fn the_same_site_reached_by_the_samples_passes() {
+    let out = door_chime_audit("1,2");
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let v = json(&out);
+    assert_eq!(v["verdict"], "pass", "{v:#}");
+    let s3 = v["drift"]["sites"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|s| s["id_a"] == "s3")
+        .unwrap();
+    // Hard-swish vs SiLU differ by at most 3 / (1 + e^3) (Howard et al. 2019,
+    // arXiv:1905.02244; reference-facts check value).
+    let local = s3["local"]["max_abs"].as_f64().unwrap();
+    assert!(local > 0.0 && local <= 0.14227761953270035, "{s3:#}");
+}
+
+#[test]
+fn drift_of_two_files_counts_only_the_sites_that_differ() {
+    // A model against itself: its unreached branch site is not rewritten, so it does not count.
+    let door = repo("sample-models/door-chime-keywords.onnx");
+    let d = door.to_str().unwrap();
+    let out = actswap(&[
+        "drift",
+        d,
+        d,
+        "--dim",
+        "batch=1",
+        "--dist",
+        "uniform",
+        "--range",
+        "-2,-1",
+        "--no-latency",
+        "--json",
+    ]);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    assert_eq!(json(&out)["verdict"], "pass");
+}
+
+#[test]
+fn batch_counts_unmeasured_models_and_exits_1() {
+    let tmp = tempfile::tempdir().unwrap();
+    let out_dir = tmp.path().join("out");
+    let out = actswap(&[
+        "batch",
+        repo("sample-models/door-chime-keywords.onnx")
+            .to_str()
+            .unwrap(),
+        "-o",
+        path(&out_dir),
+        "--to",
+        "silu=hard_swish",
+        "--dim",
+        "batch=1",
+        "--dist",
+        "uniform",
+        "--range",
+        "-2,-1",
+        "--no-latency",
+        "--json",
+    ]);
+    assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
+    let v = json(&out);
+    assert_eq!(v["models"][0]["verdict"], "unmeasured", "{v:#}");
+    assert_eq!(v["totals"]["unmeasured"], 1, "{v:#}");
+    // Written only on pass.
+    assert!(v["models"][0]["output"].is_null(), "{v:#}");
+}

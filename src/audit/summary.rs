@@ -19,12 +19,12 @@
 //!     "worst_output_max_abs", "lowest_output_cosine", "latency_ratio", "refused_ops",
 //!     "within_budget",
 //!     "verdict": "pass" | "error" | "not_ready" | "unserved" | "over_budget"
-//!                | "nothing_compared",
+//!                | "nothing_compared" | "unmeasured",
 //!     "reasons": ["..."],                  every failing reason, the verdict's first
 //!     "error" (verdict "error" only)
 //!   }],
 //!   "totals": {"models", "passed", "errors", "not_ready", "unserved", "over_budget",
-//!              "nothing_compared",
+//!              "nothing_compared", "unmeasured",
 //!              "sites", "rewritten", "kept", "unserved_sites",
 //!              "worst_local_max_abs", "worst_output_max_abs", "lowest_output_cosine"},
 //!   "caution": "..."
@@ -36,7 +36,7 @@ use schemars::JsonSchema;
 use serde::Serialize;
 
 use super::readiness::Readiness;
-use crate::measure::{CAUTION, DriftReport};
+use crate::measure::{CAUTION, DriftReport, SiteDrift};
 use crate::plan::{Action, Plan};
 use crate::schema_version::SchemaVersion;
 
@@ -57,6 +57,9 @@ pub enum Verdict {
     OverBudget,
     /// No output element was compared, so no figure means anything.
     NothingCompared,
+    /// A rewritten site has no drift figure (its branch was not taken on these samples, or its
+    /// values could not be captured), so its swap went unchecked.
+    Unmeasured,
 }
 
 impl Verdict {
@@ -69,6 +72,7 @@ impl Verdict {
             Verdict::Unserved => "unserved",
             Verdict::OverBudget => "over_budget",
             Verdict::NothingCompared => "nothing_compared",
+            Verdict::Unmeasured => "unmeasured",
         }
     }
 }
@@ -82,8 +86,8 @@ pub struct Judgement {
 
 impl Judgement {
     /// The verdict of what was found: ops the target does not run (`readiness`, when there is a
-    /// target), sites the plan could not serve, and the drift figures against their budget (when
-    /// measured). Decided here and nowhere else.
+    /// target), sites the plan could not serve, the drift figures against their budget (when
+    /// measured), and rewritten sites left without a figure. Decided here and nowhere else.
     pub fn of(
         plan: Option<&Plan>,
         readiness: Option<&Readiness>,
@@ -150,6 +154,17 @@ impl Judgement {
                         .into(),
                 ));
             }
+            let unmeasured = unmeasured(plan, d);
+            if !unmeasured.is_empty() {
+                failed.push((
+                    Verdict::Unmeasured,
+                    format!(
+                        "{} rewritten site(s) have no drift figure: {}",
+                        unmeasured.len(),
+                        unmeasured.join("; ")
+                    ),
+                ));
+            }
         }
         match failed.first() {
             None => Judgement {
@@ -177,6 +192,50 @@ impl Judgement {
             None => self.verdict.as_str().to_string(),
             Some(r) => format!("{}: {r}", self.verdict.as_str()),
         }
+    }
+}
+
+/// Every rewritten site without both a local and a propagated drift figure, each with why
+/// (`site (kind) in graph: reason`). Rewritten: the plan's rewrites (one the comparison left out
+/// counts too); without a plan (two files compared), the pairs whose kind, parameters or ops
+/// differ. A site left as it was never counts.
+fn unmeasured(plan: Option<&Plan>, drift: &DriftReport) -> Vec<String> {
+    let why = |s: &SiteDrift| -> Option<String> {
+        if s.local.is_some() && s.propagated.is_some() {
+            return None;
+        }
+        let note = s
+            .notes
+            .iter()
+            .find(|n| n.contains("not measured"))
+            .or_else(|| s.notes.first())
+            .map_or("no figure was computed", String::as_str);
+        Some(format!(
+            "{} ({}) in {}: {note}",
+            s.id_a, s.kind_a.id, s.graph
+        ))
+    };
+    match plan {
+        Some(plan) => plan
+            .sites
+            .iter()
+            .filter(|p| matches!(p.action, Action::Rewrite(_)))
+            .filter_map(|p| match drift.sites.iter().find(|s| s.id_a == p.site.id) {
+                Some(s) => why(s),
+                None => Some(format!(
+                    "{} ({}) in {}: not compared",
+                    p.site.id, p.site.kind.id, p.site.graph
+                )),
+            })
+            .collect(),
+        None => drift
+            .sites
+            .iter()
+            .filter(|s| {
+                !std::ptr::eq(s.kind_a, s.kind_b) || s.params_a != s.params_b || s.ops_a != s.ops_b
+            })
+            .filter_map(why)
+            .collect(),
     }
 }
 
@@ -326,6 +385,8 @@ pub struct Totals {
     pub unserved: usize,
     pub over_budget: usize,
     pub nothing_compared: usize,
+    /// Models with a rewritten site that has no drift figure.
+    pub unmeasured: usize,
     pub sites: usize,
     pub rewritten: usize,
     pub kept: usize,
@@ -373,6 +434,7 @@ impl BatchReport {
                 Verdict::Unserved => t.unserved += 1,
                 Verdict::OverBudget => t.over_budget += 1,
                 Verdict::NothingCompared => t.nothing_compared += 1,
+                Verdict::Unmeasured => t.unmeasured += 1,
             }
             t.sites += s.sites;
             t.rewritten += s.rewritten;

@@ -1,7 +1,7 @@
 //! celu: max(0, x) + min(0, alpha * (e^(x/alpha) - 1)).
 
 use super::emit::{Builder, OpVersion, Unavailable, ops};
-use super::kind::{AttrParam, FusedOp, Kind};
+use super::kind::{AttrParam, FusedOp, Kind, Scale};
 use super::numeric::{bisect, finite};
 use super::params::Param;
 
@@ -46,8 +46,15 @@ pub const KIND: Kind = Kind {
               -0.7869386805747332.",
     numeric_notes: "celu(x; 1) equals elu(x; 1) and is reported as elu, which ONNX has since \
                     opset 6. Recovery solves alpha * (e^(-1/alpha) - 1) = f(-1), monotone in \
-                    alpha > 0, by bisection on log(alpha).",
+                    alpha > 0, by bisection on log(alpha). Scale: f(x; alpha) = alpha * \
+                    f(x / alpha; 1), so fitted forms of every alpha > 0 are rescaled fits of \
+                    celu(x; 1).",
     piecewise_linear: false,
+    // celu(x; alpha) = alpha * celu(x / alpha; 1), the ONNX Celu function body.
+    scale: Some(Scale {
+        factor: |p| 1.0 / p[0],
+        base: &[1.0],
+    }),
     primitive,
 };
 

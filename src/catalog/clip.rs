@@ -52,6 +52,7 @@ pub const KIND: Kind = Kind {
                     (+-3.4028234663852886e38). A clip with neither bound active is the \
                     identity and is not identified.",
     piecewise_linear: true,
+    scale: None,
     primitive,
 };
 

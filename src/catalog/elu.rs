@@ -37,6 +37,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "The negative branch uses expm1: exp(x) - 1 loses the leading digits near \
                     0. Recovery: alpha = f(-1) / (e^-1 - 1).",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

@@ -13,15 +13,16 @@
 //! for the rounded function by dense evaluation: the error inside the range and over the whole
 //! real line, both with a safety margin so that a reported bound is never below the error.
 //! Parameters per channel give one fit per channel (all with the same `K`); the worst channel's
-//! bound is the site's.
+//! bound is the site's. A kind with an exact change of scale (swish's beta) fits one function
+//! over rescaled ranges, and channels whose rescaled ranges are close share that fit ([`share`]).
 
 mod bound;
+mod memo;
 mod minimax;
+mod share;
 mod write;
 
-use std::collections::HashMap;
 use std::fmt;
-use std::sync::{LazyLock, Mutex};
 
 use super::kind::Kind;
 use super::params::Params;
@@ -29,6 +30,8 @@ use super::substitute::ErrorBound;
 use crate::onnx::proto::tensor_proto::DataType;
 
 pub use bound::FitBound;
+
+use memo::Memo;
 
 /// The fitting range when nothing else gives one (`swap` without `--fit-range`).
 pub const DEFAULT_RANGE: FitRange = FitRange { lo: -8.0, hi: 8.0 };
@@ -192,7 +195,7 @@ impl Fitted {
         let (pwl, p) = (&self.channels[c], &self.params[c]);
         let f = |x: f64| self.kind.eval(x, p);
         match FitRange::new(lo, hi) {
-            Ok(range) => bound::of(&f, pwl, range, &(self.kind.breakpoints)(p)).in_range,
+            Ok(range) => bound::inside(&f, pwl, range, &(self.kind.breakpoints)(p)),
             // One value seen: the error there.
             Err(_) => ErrorBound {
                 value: (f(lo) - pwl.eval(lo)).abs(),
@@ -240,22 +243,40 @@ fn rounding(elem_type: DataType, kind: &'static str) -> Result<fn(f64) -> f64, F
     })
 }
 
-/// Memo key: kind id, then the bits of the parameters, range ends, segments and element type.
-type Key = (&'static str, Vec<u64>);
-
-/// Fits of one channel, remembered: a model's sites mostly share kinds and parameters.
-static MEMO: LazyLock<Mutex<HashMap<Key, (Pwl, FitBound)>>> = LazyLock::new(Default::default);
-/// Entries kept before the memo starts afresh.
-const MEMO_CAPACITY: usize = 1 << 14;
+/// Fits of one channel.
+static CHANNELS: Memo = Memo::new();
 
 /// Fits one channel of `kind` with parameters `p`: `segments` segments over `range`, constants
-/// in `elem_type`.
+/// in `elem_type`; rescaled from a fit shared with other parameter values when the kind has a
+/// change of scale ([`share`]).
 pub fn fit_channel(
     kind: &'static Kind,
     p: &[f64],
     range: FitRange,
     segments: usize,
     elem_type: DataType,
+) -> Result<(Pwl, FitBound), FitError> {
+    fit_one(kind, p, range, segments, elem_type, true)
+}
+
+/// [`fit_channel`] without sharing: the channel's own fit, which sharing is measured against.
+pub fn fit_channel_alone(
+    kind: &'static Kind,
+    p: &[f64],
+    range: FitRange,
+    segments: usize,
+    elem_type: DataType,
+) -> Result<(Pwl, FitBound), FitError> {
+    fit_one(kind, p, range, segments, elem_type, false)
+}
+
+fn fit_one(
+    kind: &'static Kind,
+    p: &[f64],
+    range: FitRange,
+    segments: usize,
+    elem_type: DataType,
+    may_share: bool,
 ) -> Result<(Pwl, FitBound), FitError> {
     if !(1..=MAX_SEGMENTS).contains(&segments) {
         return Err(FitError::Segments {
@@ -265,27 +286,30 @@ pub fn fit_channel(
     }
     FitRange::new(range.lo, range.hi)?;
     let round = rounding(elem_type, kind.id)?;
-    let bits: Vec<u64> = p
-        .iter()
-        .map(|v| v.to_bits())
-        .chain([range.lo.to_bits(), range.hi.to_bits()])
-        .chain([segments as u64, elem_type as i32 as u64])
-        .collect();
-    let key = (kind.id, bits);
-    let lock = || MEMO.lock().unwrap_or_else(|e| e.into_inner());
-    if let Some(hit) = lock().get(&key) {
-        return Ok(hit.clone());
+    let numbers = p.iter().copied().chain([
+        range.lo,
+        range.hi,
+        segments as f64,
+        elem_type as i32 as f64,
+        f64::from(u8::from(may_share)),
+    ]);
+    let key = memo::key(kind.id, numbers);
+    if let Some(hit) = CHANNELS.get(&key) {
+        return Ok(hit);
     }
     let (left, right) = asymptotes(kind, p)?;
-    let f = |x: f64| kind.eval(x, p);
-    let pwl = minimax::fit(&f, range, segments, (round(left), round(right))).rounded(round);
-    let bound = bound::of(&f, &pwl, range, &(kind.breakpoints)(p));
-    let mut memo = lock();
-    if memo.len() >= MEMO_CAPACITY {
-        memo.clear();
-    }
-    memo.insert(key, (pwl.clone(), bound));
-    Ok((pwl, bound))
+    let tails = (round(left), round(right));
+    let shared = may_share
+        .then(|| share::rescaled(kind, p, range, segments, tails, round))
+        .flatten();
+    let fit = shared.unwrap_or_else(|| {
+        let f = |x: f64| kind.eval(x, p);
+        let pwl = minimax::fit(&f, range, segments, tails).rounded(round);
+        let bound = bound::of(&f, &pwl, range, &(kind.breakpoints)(p));
+        (pwl, bound)
+    });
+    CHANNELS.insert(key, fit.clone());
+    Ok(fit)
 }
 
 /// Fits every channel of `params` with `segments` segments.

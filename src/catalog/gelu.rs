@@ -57,6 +57,7 @@ pub const KIND: Kind = Kind {
                     Minimum -0.16997120748 at x = -0.75179152604. The float32 sqrt(2) \
                     (1.4142135) shifts outputs by under 1e-8.",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

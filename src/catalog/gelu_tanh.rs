@@ -46,6 +46,7 @@ pub const KIND: Kind = Kind {
                     cancellation of 1 + tanh z for negative x. Differs from exact GELU by at \
                     most 4.7323552e-4, at x = +-2.69894.",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

@@ -54,6 +54,7 @@ pub const KIND: Kind = Kind {
                     by bisection and reads slope and offset from two points inside the linear \
                     zone.",
     piecewise_linear: true,
+    scale: None,
     primitive,
 };
 

@@ -55,6 +55,7 @@ pub const KIND: Kind = Kind {
                     hard_sigmoid it is. Other slopes are written as the hard form of a swish \
                     (swish-to-hard-swish).",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

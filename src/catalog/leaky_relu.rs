@@ -37,6 +37,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Exact up to the rounding of alpha * x. Recovery: alpha = -f(-1). A slope of \
                     exactly 1 is the identity and is not identified.",
     piecewise_linear: true,
+    scale: None,
     primitive,
 };
 

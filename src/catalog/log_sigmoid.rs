@@ -28,6 +28,7 @@ pub const KIND: Kind = Kind {
                     Neg(Softplus(Neg(x))) with the naive softplus below -88.72; the true \
                     value there is x.",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

@@ -33,6 +33,7 @@ pub const KIND: Kind = Kind {
                     float32 above 88.72, where tanh(inf) = 1 still gives x. Minimum \
                     -0.308843413017 at x = -1.192431217807.",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

@@ -29,7 +29,7 @@ pub use describe::{SUMMARY_COLUMNS, describe, summary_row};
 pub use emit::Form;
 pub use identify::{MATCH_RTOL, fits, identify, identify_channels, matches, probe_points};
 pub use json::{KindJson, json};
-pub use kind::{ConstInput, FusedNode, FusedOp, Kind, Reading, normal_domain};
+pub use kind::{ConstInput, FusedNode, FusedOp, Kind, Reading, Scale, normal_domain};
 pub use params::{NamedParams, Param, ParamValue, Params};
 
 /// Declares the kinds: one line per kind, `module, // note`, in match-priority order. Each

@@ -45,6 +45,7 @@ pub const KIND: Kind = Kind {
                     and the scanner tells the two apart from the graph (a slope tensor). \
                     Identification of a per-channel site runs per channel.",
     piecewise_linear: true,
+    scale: None,
     primitive,
 };
 

@@ -39,6 +39,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Exact in every precision. Identified only when f(-1) and f(-40) are exactly \
                     0, so a LeakyRelu with a tiny alpha is reported as leaky_relu, not relu.",
     piecewise_linear: true,
+    scale: None,
     primitive,
 };
 

@@ -34,6 +34,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Exact in every precision (0 and 6 are exact float32 values). Identified \
                     when the recovered clip bounds round to 0 and 6 in float32.",
     piecewise_linear: true,
+    scale: None,
     primitive,
 };
 

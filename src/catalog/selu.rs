@@ -57,6 +57,7 @@ pub const KIND: Kind = Kind {
                     gamma = f(1), alpha = f(-1) / (gamma * (e^-1 - 1)). With gamma = 1 the \
                     function is elu and is reported as elu.",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

@@ -57,6 +57,7 @@ pub const KIND: Kind = Kind {
                     adjacent doubles and reads bias = x - f(x) beyond it; lambd = bias = 0 is \
                     the identity and is not identified.",
     piecewise_linear: true,
+    scale: None,
     primitive,
 };
 

@@ -29,6 +29,7 @@ pub const KIND: Kind = Kind {
                     below. exp(x) / (1 + exp(x)) alone is NaN above x = 88.72 in float32 \
                     (88.72 = ln of the largest float32).",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

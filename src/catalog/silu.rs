@@ -45,6 +45,7 @@ pub const KIND: Kind = Kind {
                     Identified when swish's recovered beta rounds to 1.0 in float32; any other \
                     beta is reported as swish with that beta.",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

@@ -35,6 +35,7 @@ pub const KIND: Kind = Kind {
                     1 + exp(x) rounds to 1; the thresholded export returns x above 20, off by \
                     at most 2.1e-9.",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

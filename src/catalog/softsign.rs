@@ -29,6 +29,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Rational, no overflow; tends to +-1 only like 1/|x|, so slowly that no \
                     probe range is a tail for it.",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

@@ -25,6 +25,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "One rounding of x * x; overflows to +inf in float32 above \
                     sqrt(3.4028235e38) = 1.8446743e19.",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

@@ -1,7 +1,7 @@
 //! swish: x * sigmoid(beta * x).
 
 use super::emit::{Builder, OpVersion, Unavailable, ops};
-use super::kind::{AttrParam, FusedOp, Kind, bias_input};
+use super::kind::{AttrParam, FusedOp, Kind, Scale, bias_input};
 use super::numeric::{finite, logit, sigmoid};
 use super::params::Param;
 use super::smooth;
@@ -53,8 +53,15 @@ pub const KIND: Kind = Kind {
               head: swish(1; 1.702) = 0.8457957659328212.",
     numeric_notes: "Derivative f' = beta * f + sigmoid(beta * x) * (1 - beta * f). Recovery: \
                     beta = logit(f(t) / t) / t at t = 1, with t shrunk when |beta| is large so \
-                    that sigmoid(beta * t) stays away from 0 and 1.",
+                    that sigmoid(beta * t) stays away from 0 and 1. Scale: f(x; beta) = \
+                    f(beta * x; 1) / beta, so fitted forms of every beta > 0 are rescaled \
+                    fits of SiLU.",
     piecewise_linear: false,
+    // x * sigmoid(beta x) = (beta x) * sigmoid(beta x) / beta: swish is SiLU rescaled.
+    scale: Some(Scale {
+        factor: |p| p[0],
+        base: &[1.0],
+    }),
     primitive,
 };
 

@@ -29,6 +29,7 @@ pub const KIND: Kind = Kind {
     numeric_notes: "tanh(x) = 2 * sigmoid(2x) - 1 exactly, but that form cancels near 0 \
                     (absolute error ~6e-8 in float32 instead of a relative one).",
     piecewise_linear: false,
+    scale: None,
     primitive,
 };
 

@@ -40,6 +40,7 @@ pub const KIND: Kind = Kind {
                     to adjacent doubles and reports the last x where f is 0, so a float32 \
                     alpha is recovered exactly.",
     piecewise_linear: true,
+    scale: None,
     primitive,
 };
 

@@ -28,7 +28,7 @@ use super::{exit_code, output, paths};
 of the converted model, run both models with tract and report drift and latency per site and per \
 output, against the target's budget (or the flags'). The last line is the one verdict: pass, or \
 the first failing reason among error, ops the target does not run (not_ready), unserved sites, \
-over budget and nothing compared. Drift on sample inputs certifies nothing for safety-relevant \
+over budget, nothing compared, and rewritten sites without a drift figure (unmeasured). Drift on sample inputs certifies nothing for safety-relevant \
 uses: validate as your domain requires.",
     after_help = "Examples:\n  actswap audit sample-models/orchard-grader.onnx --target piecewise-linear --dim batch=1\n  actswap audit model.onnx --to silu=hard_swish --input image=batch.npy --max-abs 1e-2 -o model.fast.onnx\n  actswap audit model.onnx --target core-opset13 --dim batch=1 --samples 8 --json > audit.json\n  actswap audit model.onnx --target piecewise-linear --dim batch=1 --report audit.html\n\nExit codes: 0 pass, 1 any other verdict, 2 error."
 )]

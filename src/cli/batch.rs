@@ -3,8 +3,8 @@
 //! and nothing is written for it; the others go on.
 //!
 //! Exit codes: 0 every model passes, 1 some model has another verdict (ops the target does not
-//! run, unserved sites, over budget, nothing compared), 2 some model failed (or the batch itself
-//! could not start).
+//! run, unserved sites, over budget, nothing compared, a rewritten site unmeasured), 2 some model
+//! failed (or the batch itself could not start).
 
 use std::io::IsTerminal;
 use std::path::PathBuf;

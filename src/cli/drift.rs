@@ -1,7 +1,7 @@
 //! `actswap drift`: the numeric drift and latency of a rewrite, per site and at every output,
 //! with both models run by tract on the same samples.
 //!
-//! Exit codes: 0 pass, 1 over budget or nothing compared, 2 error. Without budget flags the
+//! Exit codes: 0 pass, 1 over budget, nothing compared or a changed site unmeasured, 2 error. Without budget flags the
 //! default budget applies ([`crate::measure::DEFAULT_BUDGET`]). The JSON schema (`--json`) is
 //! printed by `actswap schema drift`.
 
@@ -33,7 +33,7 @@ catalogue's worst-case error over it, and per graph output max abs, mean abs, RM
 cosine, the share beyond tolerance and top-1 agreement; then end-to-end and per-site latency. \
 Drift on sample inputs certifies nothing for safety-relevant uses: validate as your domain \
 requires.",
-    after_help = "Examples:\n  actswap drift model.onnx model.fast.onnx --dim batch=1\n  actswap drift model.onnx model.fast.onnx --input image=batch.npy --max-abs 1e-3 --min-cosine 0.9999\n  actswap drift model.onnx model.fast.onnx --dim batch=1 --samples 8 --dist uniform --range=-4,4 --json\n\nWithout budget flags the default budget applies (output cosine at least 0.999).\nExit codes: 0 pass, 1 over budget or nothing compared, 2 error."
+    after_help = "Examples:\n  actswap drift model.onnx model.fast.onnx --dim batch=1\n  actswap drift model.onnx model.fast.onnx --input image=batch.npy --max-abs 1e-3 --min-cosine 0.9999\n  actswap drift model.onnx model.fast.onnx --dim batch=1 --samples 8 --dist uniform --range=-4,4 --json\n\nWithout budget flags the default budget applies (output cosine at least 0.999).\nExit codes: 0 pass, 1 over budget, nothing compared or a changed site unmeasured, 2 error."
 )]
 pub struct Args {
     /// The original ONNX model.

@@ -1,7 +1,7 @@
 //! The command line: one file per subcommand, a thin [`main`] and documented exit codes.
 //!
 //! Exit codes: 0 the verdict is pass; 1 any other verdict (ops the target does not run, unserved
-//! sites, over budget, nothing compared); 2 an error (bad input, unreadable model, invalid
+//! sites, over budget, nothing compared, a rewritten site unmeasured); 2 an error (bad input, unreadable model, invalid
 //! options).
 
 mod access;
@@ -27,7 +27,7 @@ use clap::{Parser, Subcommand};
 /// Success: the verdict is pass.
 pub const EXIT_OK: u8 = 0;
 /// Any verdict but pass and error: ops the target does not run, unserved sites, over budget,
-/// nothing compared.
+/// nothing compared, a rewritten site unmeasured.
 pub const EXIT_FAILED: u8 = 1;
 /// An error: bad input, unreadable model, invalid options.
 pub const EXIT_ERROR: u8 = 2;
@@ -38,9 +38,11 @@ fn exit_code(verdict: crate::audit::Verdict) -> ExitCode {
     ExitCode::from(match verdict {
         Verdict::Pass => EXIT_OK,
         Verdict::Error => EXIT_ERROR,
-        Verdict::NotReady | Verdict::Unserved | Verdict::OverBudget | Verdict::NothingCompared => {
-            EXIT_FAILED
-        }
+        Verdict::NotReady
+        | Verdict::Unserved
+        | Verdict::OverBudget
+        | Verdict::NothingCompared
+        | Verdict::Unmeasured => EXIT_FAILED,
     })
 }
 
@@ -52,7 +54,7 @@ fn exit_code(verdict: crate::audit::Verdict) -> ExitCode {
     long_about = "Find every activation site in an ONNX model (fused ops and the primitive chains \
 exporters spell them as), convert them to forms a target runtime accepts, and measure the numeric \
 drift and latency of the swap on CPU.",
-    after_help = "Exit codes: 0 pass, 1 another verdict (not_ready, unserved, over_budget, nothing_compared), 2 error."
+    after_help = "Exit codes: 0 pass, 1 another verdict (not_ready, unserved, over_budget, nothing_compared, unmeasured), 2 error."
 )]
 struct Cli {
     #[command(subcommand)]

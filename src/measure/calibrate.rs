@@ -7,6 +7,7 @@ use anyhow::{Context, Result};
 
 use super::capture::{self, widen};
 use super::range::{InputRange, RangeCollector};
+use super::runnable;
 use crate::onnx::ModelIndex;
 use crate::run::{Compilation, Sample};
 use crate::scan::Site;
@@ -18,10 +19,9 @@ pub fn observe(
     samples: &[Sample],
     memory_ceiling: u64,
 ) -> Result<Vec<(String, InputRange)>> {
-    let model = index.model;
-    let tract = capture::load(model)
+    let tract = runnable::prepare(index, samples, memory_ceiling)
         .context("original model (calibration)")?
-        .with_memory_ceiling(memory_ceiling)
+        .tract
         .with_compilation(Compilation::Typed);
     let main = &index.graphs[0];
     let top: Vec<&Site> = sites

@@ -7,15 +7,17 @@
 //! the other (only the captured values are kept), optimized when latency is measured and as its
 //! typed graph otherwise ([`Compilation`]); a site inside an If branch is captured by running the
 //! branch lifted into a model of its own, on the samples where the If takes it, and a site in a
-//! Scan body of the main graph by a measuring copy that carries its values out of the Scan,
-//! every iteration stacked ([`super::subgraphs`]). Per pair:
+//! Scan body (of the main graph or of a branch) by a measuring copy that carries its values out
+//! of the Scan, every iteration stacked ([`super::subgraphs`]). Per pair:
 //! - **local drift**: the rewritten model's site, isolated ([`super::isolate`]), against the
 //!   original site, isolated, both fed the very tensor the original site received. Both sides go
 //!   through the same isolation and the same tract optimizer, so the difference is the swap's
 //!   own error; `isolation_max_abs` checks the isolated original against its value in the full
-//!   model. A site inside a Loop body, a local function, or a Scan body below a branch or
-//!   another body is reported as not measured, with the reason ([`super::subgraphs::reach`]); a
-//!   site in a branch the samples never take, as not reached.
+//!   model. A site in a Loop body of the main graph or in a local function is measured at every
+//!   iteration or call of the copy tract runs ([`super::runnable`]); a site in a graph nested in
+//!   a Scan or Loop body, or in a Loop body inside a branch, is reported as not measured, with
+//!   the reason ([`super::subgraphs::reach`]); a site in a branch the samples never take, as not
+//!   reached.
 //! - **propagated drift**: the site's output tensor in the rewritten model against the original
 //!   model (upstream changes included), on the samples where both models reach it.
 //! - the observed input range and the catalogue's worst-case error of (kind_a, params_a) vs
@@ -33,6 +35,7 @@ use super::metrics::{DriftAccumulator, Tolerance, Top1Accumulator, top1_applies}
 use super::pairs::SitePair;
 use super::range::RangeCollector;
 use super::result::{CAUTION, DriftReport, LocalBasis, OutputDrift, SiteDrift, UnmatchedSite};
+use super::runnable::{self, Runnable};
 use super::subgraphs::{self, Captures};
 use crate::catalog::fit::Fitted;
 use crate::catalog::substitute;
@@ -151,8 +154,8 @@ pub fn compare(
                 }
             }
             Some(latency::end_to_end(
-                &a.load()?,
-                &b.load()?,
+                &a.runnable(samples)?.tract,
+                &b.runnable(samples)?.tract,
                 &samples[0],
                 lat,
             )?)
@@ -238,9 +241,15 @@ impl<'i, 'm> Side<'i, 'm> {
             .with_compilation(self.compilation))
     }
 
-    /// This side's model loaded into tract.
-    fn load(&self) -> Result<TractModel> {
-        self.prepare(self.model, self.what)
+    /// The copy of this side's model tract runs ([`runnable::prepare`]), compiled as this side
+    /// runs.
+    fn runnable(&self, samples: &[Sample]) -> Result<Runnable> {
+        let Runnable { tract, bodies } = runnable::prepare(self.index, samples, self.ceiling)
+            .with_context(|| self.what.to_string())?;
+        Ok(Runnable {
+            tract: tract.with_compilation(self.compilation),
+            bodies,
+        })
     }
 
     /// Runs this side on `samples` with the tensors `asks` of each graph captured; the tract
@@ -250,8 +259,15 @@ impl<'i, 'm> Side<'i, 'm> {
         samples: &[Sample],
         asks: BTreeMap<usize, BTreeSet<String>>,
     ) -> Result<Captures> {
-        let tract = self.load()?;
-        subgraphs::capture(self.index, &tract, samples, asks, self.what, self.ceiling)
+        let runnable = self.runnable(samples)?;
+        subgraphs::capture(
+            self.index,
+            &runnable,
+            samples,
+            asks,
+            self.what,
+            self.ceiling,
+        )
     }
 
     /// The graph output names, in graph order.
@@ -274,6 +290,8 @@ struct Pair<'s, 'v> {
     fit: Option<&'s Fitted>,
     /// Per sample, the values of each site's graph where it ran; the reason when not captured.
     seen: Result<Seen<'v>, String>,
+    /// How the figures combine the iterations or calls of a Loop or function body.
+    combined: Option<&'v str>,
 }
 
 /// The values of a pair's graphs per sample (`None`: the sample did not reach the graph).
@@ -290,16 +308,26 @@ impl<'s, 'v> Pair<'s, 'v> {
         cap_b: &'v Captures,
     ) -> Pair<'s, 'v> {
         let seen = reach.and_then(|()| {
-            Ok(Seen {
+            let seen = Seen {
                 a: cap_a.at(p.a.graph_index)?,
                 b: cap_b.at(p.b.graph_index)?,
-            })
+            };
+            if seen.a.len() != seen.b.len() {
+                return Err(format!(
+                    "{} runs {} time(s) in the original model and {} in the rewritten one",
+                    p.a.graph,
+                    seen.a.len(),
+                    seen.b.len()
+                ));
+            }
+            Ok(seen)
         });
         Pair {
             a: &p.a,
             b: &p.b,
             fit: p.fit.as_ref(),
             seen,
+            combined: cap_a.note(p.a.graph_index),
         }
     }
 
@@ -316,10 +344,10 @@ impl<'s, 'v> Pair<'s, 'v> {
         match &self.seen {
             Err(why) => notes.push(format!("drift not measured: {why}")),
             Ok(_) if self.reached_a().is_empty() => notes.push(format!(
-                "drift not measured: not reached on these samples ({} did not run)",
+                "drift not measured: not reached on these samples ({} did not run): give inputs that reach it",
                 self.a.graph
             )),
-            Ok(_) => {}
+            Ok(_) => notes.extend(self.combined.map(str::to_string)),
         }
         SiteDrift {
             id_a: self.a.id.clone(),

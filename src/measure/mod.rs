@@ -15,6 +15,7 @@ pub mod metrics;
 pub mod pairs;
 pub mod range;
 pub mod result;
+pub mod runnable;
 mod stats;
 pub mod subgraphs;
 
@@ -23,4 +24,4 @@ pub use compare::{CompareOptions, compare, compare_models};
 pub use latency::LatencyOptions;
 pub use metrics::{Drift, Tolerance, Top1};
 pub use pairs::SitePair;
-pub use result::{CAUTION, DriftReport};
+pub use result::{CAUTION, DriftReport, SiteDrift};

@@ -5,11 +5,17 @@
 //! in single static assignment form, and the onnx checker refuses a node output that repeats a
 //! graph input, an initializer or a name of an enclosing graph, and a repeated initializer or
 //! graph input name) or a tensor whose data disagrees with its shape is an error.
+//!
+//! Each graph numbers the tensor names it mentions once ([`TensorId`]) and keeps its wiring in
+//! flat vectors by number (each node's inputs and outputs, the producer of each tensor, the
+//! readers of each tensor), so a graph of a million nodes costs tens of bytes per node, and later
+//! stages can compare integers instead of hashing names.
 
 use std::cmp::Reverse;
 use std::collections::{BTreeMap, BinaryHeap};
 
-use foldhash::{HashMap, HashMapExt, HashSet, HashSetExt};
+use foldhash::{HashMap, HashSet, HashSetExt};
+use string_interner::{DefaultStringInterner, Symbol, symbol::SymbolU32};
 
 use anyhow::{Context, Result, bail};
 
@@ -27,6 +33,16 @@ pub const CONSTANT_QUERY_LIMIT: u64 = 1 << 20;
 
 /// Shapes whose element count exceeds this are refused as absurd.
 pub const ABSURD_ELEMENTS: u64 = 1 << 40;
+
+/// A tensor name's number in its graph: every name a node, graph input, graph output or
+/// initializer of the graph mentions has one, in order of first mention.
+pub type TensorId = u32;
+
+/// The [`TensorId`] of an absent optional input or output (an empty name).
+pub const ABSENT: TensorId = u32::MAX;
+
+/// No node of the graph produces the tensor.
+const NO_NODE: u32 = u32::MAX;
 
 /// Where a graph sits in the model.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -71,10 +87,26 @@ pub struct GraphIndex<'m> {
     pub opsets: BTreeMap<String, i64>,
     initializers: HashMap<&'m str, &'m TensorProto>,
     value_info: HashMap<&'m str, &'m ValueInfoProto>,
-    producer: HashMap<&'m str, usize>,
-    consumers: HashMap<&'m str, Vec<usize>>,
     outputs_set: HashSet<&'m str>,
+    /// The graph's tensor names, numbered.
+    names: DefaultStringInterner,
+    wiring: Wiring,
     order: Vec<usize>,
+}
+
+/// A graph's wiring by tensor id: node `n`'s inputs are `inputs[input_starts[n]..input_starts[n +
+/// 1]]` ([`ABSENT`] for an empty name), and likewise its outputs; a tensor's readers are
+/// `readers[reader_starts[t]..reader_starts[t + 1]]`.
+#[derive(Debug, Default)]
+struct Wiring {
+    inputs: Vec<TensorId>,
+    input_starts: Vec<u32>,
+    outputs: Vec<TensorId>,
+    output_starts: Vec<u32>,
+    /// The node producing each tensor ([`NO_NODE`] for none).
+    producer: Vec<u32>,
+    readers: Vec<usize>,
+    reader_starts: Vec<u32>,
 }
 
 /// Index of a whole model: all graphs, main first, each subgraph after its parent.
@@ -139,7 +171,7 @@ impl<'m> ModelIndex<'m> {
         if let Some(t) = graph.initializers.get(name) {
             return tensor::read(t, self.model.dir(), CONSTANT_QUERY_LIMIT).ok();
         }
-        if let Some(&p) = graph.producer.get(name) {
+        if let Some(p) = graph.producer(name) {
             let node = &graph.nodes[p];
             return match (node.domain(), node.op_type()) {
                 ("" | "ai.onnx", "Constant") => constant_node_value(node, self.model),
@@ -205,7 +237,7 @@ impl<'m> ModelIndex<'m> {
         {
             validate_tensor(t, self.model).with_context(|| format!("graph {shown}"))?;
         }
-        let mut value_info = HashMap::new();
+        let mut value_info = HashMap::default();
         for v in graph
             .input
             .iter()
@@ -214,28 +246,36 @@ impl<'m> ModelIndex<'m> {
         {
             value_info.entry(v.name()).or_insert(v);
         }
-        let mut defined: HashSet<&str> = outer.clone();
-        defined.extend(inputs.iter().copied());
-        defined.extend(initializers.keys().copied());
-        defined.extend(
-            graph
-                .sparse_initializer
-                .iter()
-                .filter_map(|s| s.values.as_ref())
-                .map(|t| t.name()),
-        );
-        let gi = self.add_nodes(
-            &graph.node,
-            path.clone(),
+        let predefined: Vec<&str> = inputs
+            .iter()
+            .copied()
+            .chain(graph.initializer.iter().map(|t| t.name()))
+            .chain(
+                graph
+                    .sparse_initializer
+                    .iter()
+                    .filter_map(|s| s.values.as_ref())
+                    .map(|t| t.name()),
+            )
+            .collect();
+        let scope = Scope {
+            path,
             kind,
             location,
             parent,
-            opsets.clone(),
-            inputs,
-            outputs,
+            opsets: opsets.clone(),
+        };
+        let gi = self.add_nodes(
+            &graph.node,
+            scope,
+            Names {
+                inputs,
+                outputs,
+                predefined,
+                outer,
+            },
             initializers,
             value_info,
-            defined,
         )?;
         self.add_subgraphs(gi, opsets)
     }
@@ -256,47 +296,56 @@ impl<'m> ModelIndex<'m> {
         let inputs: Vec<&str> = f.input.iter().map(String::as_str).collect();
         let outputs: Vec<&str> = f.output.iter().map(String::as_str).collect();
         let value_info = f.value_info.iter().map(|v| (v.name(), v)).collect();
-        let defined: HashSet<&str> = inputs.iter().copied().collect();
-        let gi = self.add_nodes(
-            &f.node,
+        let scope = Scope {
             path,
-            GraphKind::Function {
+            kind: GraphKind::Function {
                 domain: f.domain().to_string(),
                 name: f.name().to_string(),
             },
-            GraphLocation {
+            location: GraphLocation {
                 function: Some(i),
                 steps: Vec::new(),
             },
-            None,
-            opsets.clone(),
-            inputs,
-            outputs,
-            HashMap::new(),
+            parent: None,
+            opsets: opsets.clone(),
+        };
+        let gi = self.add_nodes(
+            &f.node,
+            scope,
+            Names {
+                predefined: inputs.clone(),
+                inputs,
+                outputs,
+                outer: &HashSet::new(),
+            },
+            HashMap::default(),
             value_info,
-            defined,
         )?;
         self.add_subgraphs(gi, &opsets)
     }
 
-    #[allow(clippy::too_many_arguments)]
+    /// Numbers the graph's tensors, wires its nodes by number, checks that each name is
+    /// assigned once and every read is defined, and orders the nodes.
     fn add_nodes(
         &mut self,
         nodes: &'m [NodeProto],
-        path: String,
-        kind: GraphKind,
-        location: GraphLocation,
-        parent: Option<usize>,
-        opsets: BTreeMap<String, i64>,
-        inputs: Vec<&'m str>,
-        outputs: Vec<&'m str>,
+        scope: Scope,
+        known: Names<'m, '_>,
         initializers: HashMap<&'m str, &'m TensorProto>,
         value_info: HashMap<&'m str, &'m ValueInfoProto>,
-        mut defined: HashSet<&'m str>,
     ) -> Result<usize> {
-        let mut producer = HashMap::with_capacity(nodes.len());
-        let mut consumers: HashMap<&str, Vec<usize>> = HashMap::with_capacity(nodes.len());
-        let shown = escape(&path);
+        let shown = escape(&scope.path);
+        let mut names = DefaultStringInterner::new();
+        for &name in &known.predefined {
+            names.get_or_intern(name);
+        }
+        // Ids below this are graph inputs and initializers.
+        let predefined = names.len();
+        let mut w = Wiring {
+            input_starts: Vec::with_capacity(nodes.len() + 1),
+            output_starts: Vec::with_capacity(nodes.len() + 1),
+            ..Wiring::default()
+        };
         for (i, n) in nodes.iter().enumerate() {
             let node = || {
                 format!(
@@ -309,9 +358,15 @@ impl<'m> ModelIndex<'m> {
                 validate_tensor(t, self.model)
                     .with_context(|| format!("graph {shown}, {}", node()))?;
             }
-            for o in n.output.iter().filter(|o| !o.is_empty()) {
-                if defined.contains(o.as_str()) {
-                    let what = if inputs.contains(&o.as_str()) {
+            w.output_starts.push(w.outputs.len() as u32);
+            for o in &n.output {
+                let id = intern(&mut names, o);
+                w.outputs.push(id);
+                if id == ABSENT {
+                    continue;
+                }
+                if (id as usize) < predefined || known.outer.contains(o.as_str()) {
+                    let what = if known.inputs.contains(&o.as_str()) {
                         "a graph input"
                     } else if initializers.contains_key(o.as_str()) {
                         "an initializer"
@@ -324,31 +379,44 @@ impl<'m> ModelIndex<'m> {
                         escape(o)
                     );
                 }
-                if producer.insert(o.as_str(), i).is_some() {
+                if w.producer.len() <= id as usize {
+                    w.producer.resize(names.len(), NO_NODE);
+                }
+                if w.producer[id as usize] != NO_NODE {
                     bail!(
                         "graph {shown}: tensor '{}' is produced by more than one node (the second is '{}')",
                         escape(o),
                         escape(&node_label(n, i))
                     );
                 }
+                w.producer[id as usize] = i as u32;
             }
         }
-        defined.extend(producer.keys().copied());
-        let mut reads: Vec<Vec<&str>> = Vec::with_capacity(nodes.len());
+        w.output_starts.push(w.outputs.len() as u32);
+        let is_defined = |names: &DefaultStringInterner, producer: &[u32], name: &str| {
+            names.get(name).is_some_and(|s| {
+                let id = s.to_usize();
+                id < predefined || producer.get(id).is_some_and(|&p| p != NO_NODE)
+            }) || known.outer.contains(name)
+        };
+        // Names each node's subgraphs read from this graph or further out.
+        let mut free: Vec<(usize, Vec<TensorId>)> = Vec::new();
         for (i, n) in nodes.iter().enumerate() {
-            let mut r: Vec<&str> = n
-                .input
-                .iter()
-                .filter(|s| !s.is_empty())
-                .map(String::as_str)
-                .collect();
+            w.input_starts.push(w.inputs.len() as u32);
+            let mut outer_reads = Vec::new();
             for a in &n.attribute {
                 for g in a.g.iter().chain(&a.graphs) {
-                    free_names(g, &mut r);
+                    free_names(g, &mut outer_reads);
                 }
             }
-            for &name in &r {
-                if !defined.contains(name) {
+            let reads = n
+                .input
+                .iter()
+                .map(String::as_str)
+                .filter(|s| !s.is_empty())
+                .chain(outer_reads.iter().copied());
+            for name in reads {
+                if !is_defined(&names, &w.producer, name) {
                     bail!(
                         "graph {shown}: node '{}' ({}) reads undefined tensor '{}'",
                         escape(&node_label(n, i)),
@@ -357,46 +425,44 @@ impl<'m> ModelIndex<'m> {
                     );
                 }
             }
-            for &name in n
-                .input
-                .iter()
-                .filter(|s| !s.is_empty())
-                .map(String::as_str)
-                .collect::<Vec<_>>()
-                .iter()
-            {
-                let c = consumers.entry(name).or_default();
-                if c.last() != Some(&i) {
-                    c.push(i);
-                }
+            w.inputs
+                .extend(n.input.iter().map(|s| intern(&mut names, s)));
+            if !outer_reads.is_empty() {
+                let ids = outer_reads.iter().map(|s| intern(&mut names, s)).collect();
+                free.push((i, ids));
             }
-            reads.push(r);
         }
-        for &o in &outputs {
-            if !defined.contains(o) {
+        w.input_starts.push(w.inputs.len() as u32);
+        for &o in &known.outputs {
+            if !is_defined(&names, &w.producer, o) {
                 bail!(
                     "graph {shown}: output '{}' is not produced by any node nor an input",
                     escape(o)
                 );
             }
         }
-        let order = topological_order(nodes, &reads, &producer)
-            .with_context(|| format!("graph {shown}"))?;
-        let outputs_set = outputs.iter().copied().collect();
+        for &o in &known.outputs {
+            names.get_or_intern(o);
+        }
+        w.producer.resize(names.len(), NO_NODE);
+        w.index_readers(names.len());
+        let order =
+            topological_order(nodes, &w, &free).with_context(|| format!("graph {shown}"))?;
+        let outputs_set = known.outputs.iter().copied().collect();
         self.graphs.push(GraphIndex {
-            path,
-            kind,
-            location,
-            parent,
+            path: scope.path,
+            kind: scope.kind,
+            location: scope.location,
+            parent: scope.parent,
             nodes,
-            inputs,
-            outputs,
-            opsets,
+            inputs: known.inputs,
+            outputs: known.outputs,
+            opsets: scope.opsets,
             initializers,
             value_info,
-            producer,
-            consumers,
             outputs_set,
+            names,
+            wiring: w,
             order,
         });
         Ok(self.graphs.len() - 1)
@@ -405,21 +471,29 @@ impl<'m> ModelIndex<'m> {
     /// Indexes the graph attributes of every node of graph `gi`.
     fn add_subgraphs(&mut self, gi: usize, opsets: &BTreeMap<String, i64>) -> Result<()> {
         let nodes = self.graphs[gi].nodes;
+        let has_subgraphs = |n: &NodeProto| {
+            n.attribute
+                .iter()
+                .any(|a| a.g.is_some() || !a.graphs.is_empty())
+        };
+        if !nodes.iter().any(has_subgraphs) {
+            return Ok(());
+        }
         let base = self.graphs[gi].path.clone();
         let mut visible: HashSet<&'m str> = HashSet::new();
-        {
-            let g = &self.graphs[gi];
-            visible.extend(g.inputs.iter().copied());
-            visible.extend(g.initializers.keys().copied());
-            visible.extend(g.producer.keys().copied());
-            let mut p = g.parent;
-            while let Some(pi) = p {
-                let pg = &self.graphs[pi];
-                visible.extend(pg.inputs.iter().copied());
-                visible.extend(pg.initializers.keys().copied());
-                visible.extend(pg.producer.keys().copied());
-                p = pg.parent;
-            }
+        let mut p = Some(gi);
+        while let Some(pi) = p {
+            let pg = &self.graphs[pi];
+            visible.extend(pg.inputs.iter().copied());
+            visible.extend(pg.initializers.keys().copied());
+            visible.extend(
+                pg.nodes
+                    .iter()
+                    .flat_map(|n| &n.output)
+                    .filter(|o| !o.is_empty())
+                    .map(String::as_str),
+            );
+            p = pg.parent;
         }
         let base_location = self.graphs[gi].location.clone();
         for (i, n) in nodes.iter().enumerate() {
@@ -446,15 +520,125 @@ impl<'m> ModelIndex<'m> {
     }
 }
 
-impl<'m> GraphIndex<'m> {
-    /// Index of the node producing `tensor` in this graph.
-    pub fn producer(&self, tensor: &str) -> Option<usize> {
-        self.producer.get(tensor).copied()
+/// Where a graph being indexed sits, and the opsets in force there.
+struct Scope {
+    path: String,
+    kind: GraphKind,
+    location: GraphLocation,
+    parent: Option<usize>,
+    opsets: BTreeMap<String, i64>,
+}
+
+/// The names a graph being indexed declares, and those it sees from enclosing graphs.
+struct Names<'m, 'o> {
+    inputs: Vec<&'m str>,
+    outputs: Vec<&'m str>,
+    /// Graph inputs and initializers (sparse ones included): defined before any node.
+    predefined: Vec<&'m str>,
+    outer: &'o HashSet<&'m str>,
+}
+
+/// The id of `name`, numbering it if it is new; [`ABSENT`] for the empty name.
+fn intern(names: &mut DefaultStringInterner, name: &str) -> TensorId {
+    if name.is_empty() {
+        ABSENT
+    } else {
+        names.get_or_intern(name).to_usize() as TensorId
+    }
+}
+
+impl Wiring {
+    /// Lists each tensor's readers (each node once, in node order) from the node inputs.
+    fn index_readers(&mut self, tensors: usize) {
+        let nodes = self.input_starts.len() - 1;
+        fn distinct(w: &Wiring, n: usize) -> impl Iterator<Item = usize> + '_ {
+            let ins = w.inputs(n);
+            (0..ins.len())
+                .filter(move |&k| ins[k] != ABSENT && !ins[..k].contains(&ins[k]))
+                .map(move |k| ins[k] as usize)
+        }
+        let mut starts = vec![0u32; tensors + 1];
+        for n in 0..nodes {
+            for t in distinct(self, n) {
+                starts[t + 1] += 1;
+            }
+        }
+        for t in 0..tensors {
+            starts[t + 1] += starts[t];
+        }
+        let mut fill: Vec<u32> = starts[..tensors].to_vec();
+        let mut readers = vec![0usize; starts[tensors] as usize];
+        for n in 0..nodes {
+            for t in distinct(self, n) {
+                readers[fill[t] as usize] = n;
+                fill[t] += 1;
+            }
+        }
+        self.readers = readers;
+        self.reader_starts = starts;
     }
 
-    /// Indices of the nodes of this graph reading `tensor` (each once, in node order).
-    pub fn consumers(&self, tensor: &str) -> &[usize] {
-        self.consumers.get(tensor).map_or(&[], Vec::as_slice)
+    fn inputs(&self, n: usize) -> &[TensorId] {
+        &self.inputs[self.input_starts[n] as usize..self.input_starts[n + 1] as usize]
+    }
+
+    fn outputs(&self, n: usize) -> &[TensorId] {
+        &self.outputs[self.output_starts[n] as usize..self.output_starts[n + 1] as usize]
+    }
+
+    fn producer(&self, t: TensorId) -> Option<usize> {
+        self.producer
+            .get(t as usize)
+            .filter(|&&p| p != NO_NODE)
+            .map(|&p| p as usize)
+    }
+}
+
+impl<'m> GraphIndex<'m> {
+    /// The id of `tensor` in this graph, when the graph mentions it.
+    pub fn tensor_id(&self, tensor: &str) -> Option<TensorId> {
+        self.names.get(tensor).map(|s| s.to_usize() as TensorId)
+    }
+
+    /// The name of tensor `id` (not [`ABSENT`]).
+    pub fn tensor_name(&self, id: TensorId) -> &str {
+        SymbolU32::try_from_usize(id as usize)
+            .and_then(|s| self.names.resolve(s))
+            .unwrap_or_default()
+    }
+
+    /// How many tensors the graph mentions (ids are below this).
+    pub fn tensor_count(&self) -> usize {
+        self.names.len()
+    }
+
+    /// Node `n`'s inputs by id, in order ([`ABSENT`] for an empty name).
+    pub fn node_inputs(&self, n: usize) -> &[TensorId] {
+        self.wiring.inputs(n)
+    }
+
+    /// Node `n`'s outputs by id, in order ([`ABSENT`] for an empty name).
+    pub fn node_outputs(&self, n: usize) -> &[TensorId] {
+        self.wiring.outputs(n)
+    }
+
+    /// The node producing tensor `id` in this graph.
+    pub fn producer_of(&self, id: TensorId) -> Option<usize> {
+        self.wiring.producer(id)
+    }
+
+    /// The nodes of this graph reading tensor `id` (each once, in node order).
+    pub fn readers_of(&self, id: TensorId) -> &[usize] {
+        let w = &self.wiring;
+        match w.reader_starts.get(id as usize..id as usize + 2) {
+            Some(&[a, b]) => &w.readers[a as usize..b as usize],
+            _ => &[],
+        }
+    }
+
+    /// Index of the node producing `tensor` in this graph.
+    pub fn producer(&self, tensor: &str) -> Option<usize> {
+        self.producer_of(self.tensor_id(tensor)?)
     }
 
     /// True when `tensor` is one of this graph's outputs.
@@ -552,17 +736,24 @@ pub fn free_names<'m>(g: &'m GraphProto, out: &mut Vec<&'m str>) {
 /// Kahn's algorithm, always taking the lowest ready index so a sorted graph keeps its order.
 fn topological_order(
     nodes: &[NodeProto],
-    reads: &[Vec<&str>],
-    producer: &HashMap<&str, usize>,
+    w: &Wiring,
+    free: &[(usize, Vec<TensorId>)],
 ) -> Result<Vec<usize>> {
     let n = nodes.len();
-    let mut indegree = vec![0usize; n];
-    let mut users: Vec<Vec<usize>> = vec![Vec::new(); n];
-    for (i, r) in reads.iter().enumerate() {
-        let mut deps: Vec<usize> = r.iter().filter_map(|t| producer.get(t).copied()).collect();
+    let mut indegree = vec![0u32; n];
+    // Edges (producer, reader), one per distinct dependency.
+    let mut edges: Vec<(u32, u32)> = Vec::with_capacity(w.inputs.len());
+    let mut extra = free.iter().peekable();
+    let mut deps: Vec<usize> = Vec::new();
+    for i in 0..n {
+        deps.clear();
+        deps.extend(w.inputs(i).iter().filter_map(|&t| w.producer(t)));
+        if let Some((_, ids)) = extra.next_if(|(node, _)| *node == i) {
+            deps.extend(ids.iter().filter_map(|&t| w.producer(t)));
+        }
         deps.sort_unstable();
         deps.dedup();
-        for d in deps {
+        for &d in &deps {
             if d == i {
                 bail!(
                     "node '{}' ({}) reads its own output: the graph has a cycle",
@@ -571,15 +762,31 @@ fn topological_order(
                 );
             }
             indegree[i] += 1;
-            users[d].push(i);
+            edges.push((d as u32, i as u32));
         }
     }
+    // The readers of each node, grouped by node in reading order.
+    let mut starts = vec![0usize; n + 1];
+    for &(d, _) in &edges {
+        starts[d as usize + 1] += 1;
+    }
+    for i in 0..n {
+        starts[i + 1] += starts[i];
+    }
+    let mut fill = starts.clone();
+    let mut users = vec![0u32; edges.len()];
+    for &(d, u) in &edges {
+        users[fill[d as usize]] = u;
+        fill[d as usize] += 1;
+    }
+    drop((edges, fill));
     let mut ready: BinaryHeap<Reverse<usize>> =
         (0..n).filter(|&i| indegree[i] == 0).map(Reverse).collect();
     let mut order = Vec::with_capacity(n);
     while let Some(Reverse(i)) = ready.pop() {
         order.push(i);
-        for &u in &users[i] {
+        for &u in &users[starts[i]..starts[i + 1]] {
+            let u = u as usize;
             indegree[u] -= 1;
             if indegree[u] == 0 {
                 ready.push(Reverse(u));

@@ -5,11 +5,13 @@ pub mod attrs;
 pub mod builder;
 pub mod external;
 pub mod index;
+pub mod inline;
 pub mod model;
 mod stream;
 pub mod summary;
 pub mod tensor;
 mod unknown;
+pub mod unroll;
 pub mod walk;
 
 /// Types generated from `proto/onnx.proto` by prost (see build.rs).

@@ -118,7 +118,7 @@ fn totals_line(r: &BatchReport) -> String {
     let t = &r.totals;
     format!(
         "{} models: {} pass, {} not ready for the target, {} with unserved sites, {} over \
-         budget, {} with nothing compared, {} failed; {} sites, {} rewritten, {} kept, {} \
+         budget, {} with nothing compared, {} with a rewritten site unmeasured, {} failed; {} sites, {} rewritten, {} kept, {} \
          unserved",
         t.models,
         t.passed,
@@ -126,6 +126,7 @@ fn totals_line(r: &BatchReport) -> String {
         t.unserved,
         t.over_budget,
         t.nothing_compared,
+        t.unmeasured,
         t.errors,
         t.sites,
         t.rewritten,

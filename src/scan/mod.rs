@@ -11,23 +11,21 @@
 mod expr;
 pub mod site;
 pub mod types;
-mod wiring;
 
-use std::collections::{BTreeMap, HashMap, HashSet};
+use std::collections::{BTreeMap, HashMap};
 use std::rc::Rc;
 
 use schemars::JsonSchema;
 use serde::Serialize;
 
 use crate::catalog::{self, ConstInput, FusedNode, Kind, Params};
-use crate::onnx::index::{GraphIndex, ModelIndex};
+use crate::onnx::index::{ABSENT, GraphIndex, ModelIndex, TensorId};
 use crate::onnx::proto::NodeProto;
 use crate::onnx::proto::tensor_proto::DataType;
 use crate::schema_version::SchemaVersion;
 use expr::{Const, Expr, MAX_CHAIN, Op, Operand, Step};
 pub use site::{Site, Spelling, TypeReader};
 use types::{Types, is_float};
-use wiring::{ABSENT, Wiring};
 
 /// Per-channel parameter sets larger than this are not identified (one identification per
 /// channel).
@@ -94,8 +92,7 @@ struct GraphScan<'a, 'm> {
     index: &'a ModelIndex<'m>,
     g: usize,
     graph: &'a GraphIndex<'m>,
-    types: &'a Types<'m>,
-    wiring: Wiring<'m>,
+    types: &'a Types<'a, 'm>,
     /// Position of each node in the topological order.
     pos: Vec<usize>,
     /// Each node's element-wise step (None: not element-wise).
@@ -110,7 +107,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     fn new(
         index: &'a ModelIndex<'m>,
         g: usize,
-        types: &'a Types<'m>,
+        types: &'a Types<'a, 'm>,
         cache: &'a mut Cache,
     ) -> Self {
         let graph = &index.graphs[g];
@@ -119,7 +116,6 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             pos[n] = p;
         }
         let opset = graph.opset("").unwrap_or(1);
-        let wiring = Wiring::new(graph);
         GraphScan {
             index,
             g,
@@ -127,8 +123,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             types,
             pos,
             ops: graph.nodes.iter().map(|n| expr::op_of(n, opset)).collect(),
-            consts: vec![None; wiring.tensor_count()],
-            wiring,
+            consts: vec![None; graph.tensor_count()],
             covered: vec![false; graph.nodes.len()],
             cache,
         }
@@ -152,28 +147,46 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         sites
     }
 
+    /// Node `n`'s data inputs (CastLike's type-giving input excluded), [`ABSENT`] for a missing
+    /// optional one.
+    fn inputs(&self, n: usize) -> &'a [TensorId] {
+        let graph: &'a GraphIndex<'m> = self.graph;
+        let all = graph.node_inputs(n);
+        &all[..expr::data_inputs(&graph.nodes[n]).min(all.len())]
+    }
+
+    /// Node `n`'s output, when it has exactly one.
+    fn output(&self, n: usize) -> Option<TensorId> {
+        match self.graph.node_outputs(n) {
+            [o] if *o != ABSENT => Some(*o),
+            _ => None,
+        }
+    }
+
     /// The value of a tensor of this graph's nodes when it is a constant.
-    fn constant_id(&mut self, id: u32) -> Option<Rc<Const>> {
+    fn constant_id(&mut self, id: TensorId) -> Option<Rc<Const>> {
         if id == ABSENT {
             return None;
         }
         if let Some(c) = &self.consts[id as usize] {
             return c.clone();
         }
-        let v = self.index.constant(self.g, self.wiring.name(id)).map(|t| {
-            Rc::new(Const {
-                values: t.data,
-                dims: t.dims,
-            })
-        });
+        let v = self
+            .index
+            .constant(self.g, self.graph.tensor_name(id))
+            .map(|t| {
+                Rc::new(Const {
+                    values: t.data,
+                    dims: t.dims,
+                })
+            });
         self.consts[id as usize] = Some(v.clone());
         v
     }
 
     /// Adds the inputs of node `n` that carry computed (non-constant) data to `into`, each once.
     fn add_dynamic_inputs(&mut self, n: usize, into: &mut Vec<u32>) {
-        for k in 0..self.wiring.inputs(n).len() {
-            let id = self.wiring.inputs(n)[k];
+        for &id in self.inputs(n) {
             if id != ABSENT && !into.contains(&id) && self.constant_id(id).is_none() {
                 into.push(id);
             }
@@ -189,7 +202,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     /// part of it and the site ends earlier.
     fn site_ending_at(&mut self, n: usize) -> Option<Site> {
         let node = &self.graph.nodes[n];
-        self.wiring.output(n)?;
+        self.output(n)?;
         let fused_op = catalog::is_fused_op(node.domain(), node.op_type());
         if self.ops[n].is_some() {
             let chains = self.chains(n);
@@ -215,7 +228,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 if self.ends_before_last(*input, nodes, &found) {
                     break;
                 }
-                let input = self.wiring.name(*input);
+                let input = self.graph.tensor_name(*input);
                 return Some(self.site(
                     nodes,
                     input,
@@ -243,7 +256,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         let [t] = dynamic[..] else {
             return false;
         };
-        if self.wiring.producer(t).is_none_or(|p| !rest.contains(&p)) {
+        if self.graph.producer_of(t).is_none_or(|p| !rest.contains(&p)) {
             return false;
         }
         self.identify_chain(input, rest)
@@ -267,13 +280,13 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             let (k, p) = match frontier
                 .iter()
                 .enumerate()
-                .map(|(k, &t)| (k, self.wiring.producer(t)))
+                .map(|(k, &t)| (k, self.graph.producer_of(t)))
                 .max_by_key(|(_, p)| p.map(|p| self.pos[p] as i64).unwrap_or(-1))
             {
                 Some((k, Some(p))) => (k, p),
                 _ => break,
             };
-            if self.covered[p] || self.wiring.output(p).is_none() || self.ops[p].is_none() {
+            if self.covered[p] || self.output(p).is_none() || self.ops[p].is_none() {
                 break;
             }
             frontier.swap_remove(k);
@@ -287,12 +300,8 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     /// catalogue recognises it.
     fn identify_chain(&mut self, input: u32, nodes: &[usize]) -> Option<Identified> {
         let last = *nodes.last()?;
-        let output = self.wiring.output(last)?;
-        let not_float = |t: u32| {
-            self.types
-                .of(self.wiring.name(t))
-                .is_some_and(|dt| !is_float(dt))
-        };
+        let output = self.output(last)?;
+        let not_float = |t: TensorId| self.types.of_id(t).is_some_and(|dt| !is_float(dt));
         if not_float(input) || not_float(output) {
             return None;
         }
@@ -336,8 +345,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         for &n in nodes {
             let op = self.ops[n].clone()?;
             let mut args = smallvec::SmallVec::new();
-            for k in 0..self.wiring.inputs(n).len() {
-                let id = self.wiring.inputs(n)[k];
+            for &id in self.inputs(n) {
                 let a = if id == ABSENT {
                     Operand::None
                 } else if id == input {
@@ -353,7 +361,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 };
                 args.push(a);
             }
-            step_outputs.push(self.wiring.output(n)?);
+            step_outputs.push(self.output(n)?);
             steps.push(Step { op, args });
         }
         let multi: Vec<&Const> = consts
@@ -387,8 +395,10 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             return None;
         }
         let opset = self.graph.opset(node.domain()).unwrap_or(1);
-        let values: Vec<Option<Rc<Const>>> = (0..self.wiring.inputs(n).len())
-            .map(|k| self.constant_id(self.wiring.inputs(n)[k]))
+        let values: Vec<Option<Rc<Const>>> = self
+            .inputs(n)
+            .iter()
+            .map(|&id| self.constant_id(id))
             .collect();
         let constant = |i: usize| {
             values.get(i).cloned().flatten().map(|c| ConstInput {
@@ -423,24 +433,26 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         let graph = self.graph;
         let last = *nodes.last().expect("non-empty chain");
         let output = graph.nodes[last].output[0].clone();
-        let inside: HashSet<usize> = nodes.iter().copied().collect();
+        // Chains are short: a slice lookup beats hashing.
+        let inside = nodes;
         let mut notes = Vec::new();
         let mut rewritable = true;
         let mut type_readers = Vec::new();
         for &n in nodes {
-            for t in &graph.nodes[n].output {
-                if *t == output {
+            for (k, &id) in graph.node_outputs(n).iter().enumerate() {
+                let t = &graph.nodes[n].output[k];
+                if *t == output || id == ABSENT {
                     continue;
                 }
                 if graph.is_output(t) {
                     notes.push(format!("intermediate '{t}' is a graph output"));
                     rewritable = false;
                 }
-                for &c in graph.consumers(t) {
+                for &c in graph.readers_of(id) {
                     if inside.contains(&c) {
                         continue;
                     }
-                    match self.rewire_type_reader(c, t, [input, output.as_str()], &inside) {
+                    match self.rewire_type_reader(c, t, [input, output.as_str()], inside) {
                         Some(readers) => {
                             notes.push(format!(
                                 "intermediate '{t}' is also read by '{}' for its type or shape \
@@ -466,16 +478,12 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         }
         let mut constants: Vec<String> = Vec::new();
         for &n in nodes {
-            for k in 0..self.wiring.inputs(n).len() {
-                let id = self.wiring.inputs(n)[k];
-                if id == ABSENT || self.wiring.name(id) == input {
+            for &id in self.inputs(n) {
+                if id == ABSENT || graph.tensor_name(id) == input {
                     continue;
                 }
-                let name = self.wiring.name(id);
-                let produced_inside = self
-                    .wiring
-                    .producer(id)
-                    .is_some_and(|p| inside.contains(&p));
+                let name = graph.tensor_name(id);
+                let produced_inside = graph.producer_of(id).is_some_and(|p| inside.contains(&p));
                 if !produced_inside
                     && !constants.iter().any(|c| c == name)
                     && self.constant_id(id).is_some()
@@ -521,7 +529,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         reader: usize,
         t: &str,
         instead: [&str; 2],
-        inside: &HashSet<usize>,
+        inside: &[usize],
     ) -> Option<Vec<TypeReader>> {
         let node = &self.graph.nodes[reader];
         let slots: Vec<usize> = (0..node.input.len())
@@ -534,10 +542,12 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 .and_then(|t| t.tensor_type.as_ref())
                 .and_then(|t| t.shape.clone())
         };
-        let feeds_site = node
-            .output
+        let feeds_site = self
+            .graph
+            .node_outputs(reader)
             .iter()
-            .any(|o| self.graph.consumers(o).iter().any(|c| inside.contains(c)));
+            .filter(|&&o| o != ABSENT)
+            .any(|&o| self.graph.readers_of(o).iter().any(|c| inside.contains(c)));
         let usable = |other: &str| {
             let same_type = match (self.types.of(t), self.types.of(other)) {
                 (Some(a), Some(b)) => a == b,

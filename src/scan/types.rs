@@ -8,30 +8,36 @@
 //! type of its first typed input (element-wise ops keep their input's type). Unknown stays
 //! unknown.
 
-use std::collections::HashMap;
-
 use crate::onnx::attrs;
-use crate::onnx::index::GraphIndex;
+use crate::onnx::index::{ABSENT, GraphIndex, TensorId};
 use crate::onnx::proto::tensor_proto::DataType;
 use crate::onnx::proto::{AttributeProto, NodeProto};
 
-/// Element types by tensor name.
-#[derive(Debug, Default)]
-pub struct Types<'m> {
-    known: HashMap<&'m str, DataType>,
+/// Element types of one graph's tensors, by tensor id.
+#[derive(Debug)]
+pub struct Types<'a, 'm> {
+    graph: &'a GraphIndex<'m>,
+    known: Vec<Option<DataType>>,
 }
 
-impl<'m> Types<'m> {
+impl<'a, 'm> Types<'a, 'm> {
     /// The types of `graph`'s tensors; `outer` gives the enclosing graph's, for names a
     /// subgraph reads from its outer scope.
-    pub fn infer(graph: &GraphIndex<'m>, outer: Option<&Types<'m>>) -> Types<'m> {
-        let mut known: HashMap<&'m str, DataType> = HashMap::new();
-        if let Some(o) = outer {
-            known.extend(o.known.iter().map(|(k, v)| (*k, *v)));
-        }
+    pub fn infer(graph: &'a GraphIndex<'m>, outer: Option<&Types>) -> Types<'a, 'm> {
+        let mut known: Vec<Option<DataType>> = match outer {
+            Some(o) => (0..graph.tensor_count())
+                .map(|id| o.of(graph.tensor_name(id as TensorId)))
+                .collect(),
+            None => vec![None; graph.tensor_count()],
+        };
+        let mut set = |name: &str, dt: DataType| {
+            if let Some(id) = graph.tensor_id(name) {
+                known[id as usize] = Some(dt);
+            }
+        };
         for t in graph.initializers() {
             if let Some(dt) = t.data_type.and_then(|c| DataType::try_from(c).ok()) {
-                known.insert(t.name(), dt);
+                set(t.name(), dt);
             }
         }
         let declared = |name: &str| {
@@ -45,34 +51,39 @@ impl<'m> Types<'m> {
         };
         for name in &graph.inputs {
             if let Some(dt) = declared(name) {
-                known.insert(name, dt);
+                set(name, dt);
             }
         }
         for &n in graph.order() {
             let node = &graph.nodes[n];
+            let ins = graph.node_inputs(n);
             let input = |i: usize| {
-                node.input
-                    .get(i)
-                    .filter(|s| !s.is_empty())
-                    .and_then(|s| known.get(s.as_str()).copied())
+                ins.get(i)
+                    .filter(|&&id| id != ABSENT)
+                    .and_then(|&id| known[id as usize])
             };
             let inferred = output_type(node, &input);
-            for (k, out) in node.output.iter().enumerate() {
-                if out.is_empty() {
+            for (k, &id) in graph.node_outputs(n).iter().enumerate() {
+                if id == ABSENT {
                     continue;
                 }
-                let dt = declared(out).or(if k == 0 { inferred } else { None });
-                if let Some(dt) = dt {
-                    known.insert(out.as_str(), dt);
+                let dt = declared(&node.output[k]).or(if k == 0 { inferred } else { None });
+                if dt.is_some() {
+                    known[id as usize] = dt;
                 }
             }
         }
-        Types { known }
+        Types { graph, known }
     }
 
     /// The element type of `tensor`, when known.
     pub fn of(&self, tensor: &str) -> Option<DataType> {
-        self.known.get(tensor).copied()
+        self.of_id(self.graph.tensor_id(tensor)?)
+    }
+
+    /// The element type of tensor `id` of the graph, when known.
+    pub fn of_id(&self, id: TensorId) -> Option<DataType> {
+        self.known.get(id as usize).copied().flatten()
     }
 }
 

@@ -43,6 +43,7 @@ section.model {
 .verdict.error { background: #ebedf1; color: #39404d; border-color: #c3c9d2; }
 .verdict.not_ready { background: #fde3df; color: #9e2417; border-color: #f0aca2; }
 .verdict.nothing_compared { background: #fff0d2; color: #7d5200; border-color: #eccb85; }
+.verdict.unmeasured { background: #fff0d2; color: #7d5200; border-color: #eccb85; }
 .verdict.unknown { background: #f2f2f2; color: #666; }
 p.error { background: #f6f7f9; border-left: 4px solid #8c94a1; padding: 8px 12px; margin: 6px 0 0; overflow-wrap: anywhere; }
 .offenders { margin: 8px 0; padding: 8px 12px 8px 30px; background: #fdf0ee; border-radius: 6px; color: #7d1f14; }

@@ -367,33 +367,23 @@ pub fn smallest(
     let within = |k: usize, p: &[f64]| -> Result<bool, FitError> {
         Ok(fit_channel(kind, p, range, k, elem_type)?.1.in_range.value <= allowance)
     };
+    // Upward, one segment at a time: the counts tried stay at or below the answer, so the fits
+    // shared between channels ([`share`]) are only ever made for small counts.
     let mut need = 1;
     for p in params.per_channel() {
-        if within(need, &p)? {
-            continue;
-        }
-        if !within(max, &p)? {
-            let (_, b) = fit_channel(kind, &p, range, max, elem_type)?;
-            return Err(FitError::NotWithin {
-                kind: kind.id,
-                segments: max,
-                bound: b.in_range.value,
-                range,
-                allowance,
-            });
-        }
-        // Bisection: the error falls as segments are added (not strictly, hence the check of
-        // the result below).
-        let (mut lo, mut hi) = (need, max);
-        while hi - lo > 1 {
-            let mid = (lo + hi) / 2;
-            if within(mid, &p)? {
-                hi = mid;
-            } else {
-                lo = mid;
+        while !within(need, &p)? {
+            if need >= max {
+                let (_, b) = fit_channel(kind, &p, range, max, elem_type)?;
+                return Err(FitError::NotWithin {
+                    kind: kind.id,
+                    segments: max,
+                    bound: b.in_range.value,
+                    range,
+                    allowance,
+                });
             }
+            need += 1;
         }
-        need = hi;
     }
     let mut k = need;
     loop {

@@ -17,6 +17,8 @@ pub mod profile;
 pub mod ranges;
 pub mod request;
 
+use rayon::prelude::*;
+
 use crate::catalog::emit::{EmitCtx, Emitted, Unavailable};
 use crate::catalog::fit::{self, Fitted};
 use crate::catalog::substitute::{self, ErrorBound};
@@ -129,8 +131,10 @@ impl Plan {
                 p.name
             ));
         }
+        // Sites are planned on every core: each is planned on its own, and the fits remembered
+        // between them depend only on their keys, so the plan is the same in any order.
         let sites = sites
-            .into_iter()
+            .into_par_iter()
             .map(|site| {
                 let action = plan_site(&site, policy);
                 Planned { site, action }

@@ -1,7 +1,7 @@
 //! Whether a converted model as a whole runs on the target: every node of every graph and local
 //! function against the profile (op, domain, opset, element type where the profile lists them).
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, HashSet};
 
 use schemars::JsonSchema;
 use serde::Serialize;
@@ -64,6 +64,10 @@ impl Readiness {
 pub fn check(model: &ModelIndex, profile: &Profile, sites: &[Site]) -> Readiness {
     let mut by_op: BTreeMap<String, RefusedOp> = BTreeMap::new();
     let mut types: Vec<Types> = Vec::with_capacity(model.graphs.len());
+    let site_nodes: HashSet<(usize, usize)> = sites
+        .iter()
+        .flat_map(|s| s.node_indices.iter().map(|&n| (s.graph_index, n)))
+        .collect();
     for (g, graph) in model.graphs.iter().enumerate() {
         let t = Types::infer(graph, graph.parent.map(|p| &types[p]));
         for (n, node) in graph.nodes.iter().enumerate() {
@@ -77,9 +81,7 @@ pub fn check(model: &ModelIndex, profile: &Profile, sites: &[Site]) -> Readiness
                 "" | "ai.onnx" => node.op_type().to_string(),
                 d => format!("{d}:{}", node.op_type()),
             };
-            let in_site = sites
-                .iter()
-                .any(|s| s.graph_index == g && s.node_indices.contains(&n));
+            let in_site = site_nodes.contains(&(g, n));
             let entry = by_op.entry(op.clone()).or_insert_with(|| RefusedOp {
                 op,
                 count: 0,

@@ -12,8 +12,8 @@
 //! - a weight-heavy model (48 blocks of a MatMul by a 1024 x 1024 weight and a SiLU, ~200 MB):
 //!   `audit --to silu=hard_swish --no-latency` against the bare harness; `swap`, `info` and
 //!   `scan` against the file size;
-//! - a 1M-node element-wise graph (the `scan` benchmark's blocks): `scan` and `info`, time and
-//!   peak, against the file size.
+//! - a 1M-node element-wise graph (the `scan` benchmark's blocks): `scan` (table and JSON) and
+//!   `info`, time and peak, against the file size.
 //!
 //! `cargo bench --bench footprint` (optionally `-- RUNS`, default 3).
 
@@ -180,7 +180,11 @@ fn many_nodes(dir: &Path, runs: usize, nodes: usize) {
     let size = std::fs::metadata(&model).unwrap().len() as f64;
     println!("\nelement-wise graph: {nodes} nodes, {:.0} MB", mb(size));
     let m = model.to_str().unwrap();
-    for (label, args) in [("scan", &["scan", m][..]), ("info", &["info", m][..])] {
+    for (label, args) in [
+        ("scan", &["scan", m][..]),
+        ("scan --json", &["scan", m, "--json"][..]),
+        ("info", &["info", m][..]),
+    ] {
         let u = measure(runs, 0, &|| actswap(args));
         println!(
             "  {label:<40} {:>8.2} s {:>8.0} MB   {:>5.2}x file size",

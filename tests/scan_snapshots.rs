@@ -10,7 +10,12 @@ fn check(name: &str) {
     let model = Model::load(std::path::Path::new(&path)).unwrap();
     let index = ModelIndex::build(&model).unwrap();
     let report = scan::scan(&index);
-    insta::assert_snapshot!(format!("{name}.txt"), scan_table::render(&report));
+    let text = scan_table::render(&report);
+    insta::assert_snapshot!(format!("{name}.txt"), text);
+    // Off a terminal, the table written row by row is the table rendered whole.
+    let mut streamed = Vec::new();
+    scan_table::write(&mut streamed, &report).unwrap();
+    assert_eq!(String::from_utf8(streamed).unwrap(), text);
     insta::assert_json_snapshot!(format!("{name}.json"), report);
 }
 

@@ -32,5 +32,8 @@ pub fn run(args: Args) -> Result<ExitCode> {
     } else {
         output::print(&summary.render())?;
     }
+    output::keep_until_exit(summary);
+    output::keep_until_exit(index);
+    output::keep_until_exit(model);
     Ok(ExitCode::SUCCESS)
 }

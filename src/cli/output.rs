@@ -1,6 +1,6 @@
 //! Writing to standard output; a closed pipe (`actswap scan m.onnx | head`) ends quietly.
 
-use std::io::Write;
+use std::io::{BufWriter, Write};
 
 use anyhow::Result;
 
@@ -12,9 +12,27 @@ pub fn print(text: &str) -> Result<()> {
     Ok(())
 }
 
-/// Prints a JSON document, pretty, with a final newline.
+/// Writes to standard output through a buffer, as `write` produces it.
+pub fn write_with(write: impl FnOnce(&mut dyn Write) -> std::io::Result<()>) -> Result<()> {
+    let mut out = BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+    write(&mut out)?;
+    out.flush()?;
+    Ok(())
+}
+
+/// Prints a JSON document, pretty, with a final newline, as it is serialized (a large report
+/// is never held as text).
 pub fn print_json<T: serde::Serialize>(value: &T) -> Result<()> {
-    print(&(serde_json::to_string_pretty(value)? + "\n"))
+    write_with(|out| {
+        serde_json::to_writer_pretty(&mut *out, value).map_err(std::io::Error::from)?;
+        out.write_all(b"\n")
+    })
+}
+
+/// Leaves `value` to the end of the process instead of freeing it: a decoded graph of a million
+/// nodes is millions of small allocations, and freeing them one by one only delays the exit.
+pub fn keep_until_exit<T>(value: T) {
+    std::mem::forget(value);
 }
 
 /// True when the error is a write to a closed pipe.

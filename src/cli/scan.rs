@@ -1,5 +1,6 @@
 //! `actswap scan`: the inventory of activation sites.
 
+use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -49,8 +50,13 @@ pub fn run(args: Args) -> Result<ExitCode> {
     }
     if args.json {
         output::print_json(&report)?;
-    } else {
+    } else if std::io::stdout().is_terminal() {
         output::print(&scan_table::render(&report))?;
+    } else {
+        output::write_with(|mut out| scan_table::write(&mut out, &report))?;
     }
+    output::keep_until_exit(report);
+    output::keep_until_exit(index);
+    output::keep_until_exit(model);
     Ok(ExitCode::SUCCESS)
 }

@@ -1,53 +1,75 @@
 //! The terminal form of a scan: one row per site, then a summary by kind.
 
+use std::io::{self, Write};
+
 use crate::catalog::ParamValue;
 use crate::scan::{ScanReport, Site};
 
 use super::table;
 use crate::text::escape;
 
-/// Renders the site table and the summary.
+/// The table's columns.
+const HEADER: [&str; 8] = [
+    "site",
+    "kind",
+    "params",
+    "form",
+    "ops",
+    "input -> output",
+    "graph",
+    "notes",
+];
+
+/// Renders the site table and the summary, fitted to the terminal (see [`table::render`]).
 pub fn render(report: &ScanReport) -> String {
-    let opsets: Vec<String> = report
-        .opsets
-        .iter()
-        .map(|(d, v)| format!("{} {v}", escape(if d.is_empty() { "ai.onnx" } else { d })))
-        .collect();
-    let mut out = format!(
-        "model {}  (opsets: {})\n\n",
-        escape(&report.model),
-        opsets.join(", ")
-    );
+    let mut out = heading(report);
     if report.sites.is_empty() {
         out.push_str("no activation sites found\n");
         return out;
     }
     let rows: Vec<Vec<String>> = report.sites.iter().map(row).collect();
-    out.push_str(&table::render(
-        &[
-            "site",
-            "kind",
-            "params",
-            "form",
-            "ops",
-            "input -> output",
-            "graph",
-            "notes",
-        ],
-        &rows,
-    ));
+    out.push_str(&table::render(&HEADER, &rows));
+    out.push_str(&summary(report));
+    out
+}
+
+/// Writes what [`render`] gives off a terminal, row by row, without holding the table.
+pub fn write(out: &mut impl Write, report: &ScanReport) -> io::Result<()> {
+    out.write_all(heading(report).as_bytes())?;
+    if report.sites.is_empty() {
+        return out.write_all(b"no activation sites found\n");
+    }
+    table::write_unwrapped(out, &HEADER, report.sites.len(), |i| row(&report.sites[i]))?;
+    out.write_all(summary(report).as_bytes())
+}
+
+/// The model and its opsets.
+fn heading(report: &ScanReport) -> String {
+    let opsets: Vec<String> = report
+        .opsets
+        .iter()
+        .map(|(d, v)| format!("{} {v}", escape(if d.is_empty() { "ai.onnx" } else { d })))
+        .collect();
+    format!(
+        "model {}  (opsets: {})\n\n",
+        escape(&report.model),
+        opsets.join(", ")
+    )
+}
+
+/// The number of sites, by kind.
+fn summary(report: &ScanReport) -> String {
     let counts: Vec<String> = report
         .counts
         .iter()
         .map(|(k, n)| format!("{k} {n}"))
         .collect();
-    out.push_str(&format!(
+    format!(
         "\n{} site{}: {}\n",
         report.sites.len(),
         if report.sites.len() == 1 { "" } else { "s" },
         counts.join(", ")
-    ));
-    out
+    )
 }
 
 fn row(s: &Site) -> Vec<String> {

@@ -622,3 +622,54 @@ fn onnx_function_bodies_are_identified() {
     let (_, beta) = identify(&swish_body).unwrap();
     close(beta[0], 2.5, Tol::Digits(14), "swish beta");
 }
+
+#[test]
+fn rescaled_swish_bounds_at_any_beta_match_the_formulas() {
+    // The bound for swish -> hard-swish with the same beta comes from one rescaled computation
+    // (x s(b x) - x relu6(b x + 3) / 6 = (silu(b x) - hard_swish(b x)) / b). Reference: both
+    // published formulas in f64 (Ramachandran et al. 2017, arXiv:1710.05941; Howard et al.
+    // 2019, arXiv:1905.02244), written here independently, on a dense grid around the
+    // quadratic part, where the worst case lies; at beta = 1 it is the 0.1423 of the
+    // hard-swish literature's comparison (common practice).
+    for beta in [0.25, 0.5, 1.0, 1.702, 4.0] {
+        let bound = over_reals("swish", &[beta], "hard_swish", &[beta]);
+        let dense = (0..=400_000)
+            .map(|i| (-10.0 + 20.0 * i as f64 / 400_000.0) / beta)
+            .map(|x| {
+                let swish = x / (1.0 + (-beta * x).exp());
+                let hard = x * (beta * x + 3.0).clamp(0.0, 6.0) / 6.0;
+                (swish - hard).abs()
+            })
+            .fold(0.0, f64::max);
+        assert!(
+            bound.value >= dense * (1.0 - 1e-12) && bound.value <= dense + 1e-9,
+            "beta {beta}: bound {} against the dense grid's {dense}",
+            bound.value
+        );
+        close(
+            bound.value * beta,
+            0.1423,
+            Tol::Derived(5e-5),
+            "swish vs hard-swish, times beta",
+        );
+        // ReLU holds at every scale: |x s(b x) - max(0, x)| = |t| s(-b |t|), whose maximum is
+        // W(1/e) / b = 0.2784645 / b (W the Lambert function; from memory, checked here on the
+        // dense grid).
+        let bound = over_reals("swish", &[beta], "relu", &[]);
+        let dense = (0..=400_000)
+            .map(|i| (-10.0 + 20.0 * i as f64 / 400_000.0) / beta)
+            .map(|x| (x / (1.0 + (-beta * x).exp()) - x.max(0.0)).abs())
+            .fold(0.0, f64::max);
+        assert!(
+            bound.value >= dense * (1.0 - 1e-12) && bound.value <= dense + 1e-9,
+            "beta {beta}: bound {} against the dense grid's {dense}",
+            bound.value
+        );
+        close(
+            bound.value * beta,
+            0.2784645,
+            Tol::Derived(1e-6),
+            "swish vs ReLU, times beta",
+        );
+    }
+}

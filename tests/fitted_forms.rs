@@ -14,7 +14,7 @@ use std::path::PathBuf;
 
 use actswap::catalog::emit::{EmitCtx, Emitted};
 use actswap::catalog::fit::{self, FitRange, Fitted};
-use actswap::catalog::{Kind, ParamValue, Params, get};
+use actswap::catalog::{Kind, ParamValue, Params, Scale, get};
 use actswap::onnx::Model;
 use actswap::onnx::builder::{Dim, model, opset, value};
 use actswap::onnx::proto::{GraphProto, tensor_proto::DataType};
@@ -326,23 +326,52 @@ fn swish_formula(x: f64, beta: f64) -> f64 {
 #[test]
 fn a_declared_change_of_scale_is_exact() {
     // swish(x; beta) = silu(beta x) / beta (algebra on Ramachandran et al.'s formula);
-    // celu(x; alpha) = alpha * celu(x / alpha; 1) (the ONNX Celu function body).
+    // celu(x; alpha) = alpha * celu(x / alpha; 1) (the ONNX Celu function body);
+    // x * relu6(beta x + 3) / 6 = hard_swish(beta x) / beta (algebra on Howard et al. 2019's
+    // x * ReLU6(x + 3) / 6).
     for (id, values) in [
         ("swish", vec![0.1, 0.5, 1.0, 1.702, 2.0, 7.5]),
         ("celu", vec![0.1, 0.5, 1.0, 2.0, 7.5]),
+        ("hard_swish", vec![0.1, 0.5, 1.0, 1.702, 2.0, 7.5]),
     ] {
         let k = kind(id);
-        let scale = k.scale.unwrap_or_else(|| panic!("{id} declares a scale"));
+        let Some(Scale::Factor { factor, base }) = k.scale else {
+            panic!("{id} declares a change of scale");
+        };
         for v in values {
-            let s = (scale.factor)(&[v]);
+            let s = factor(&[v]);
             for i in 0..=400 {
                 let x = -20.0 + 40.0 * i as f64 / 400.0;
                 let direct = k.eval(x, &[v]);
-                let rescaled = k.eval(s * x, scale.base) / s;
+                let rescaled = k.eval(s * x, base) / s;
                 assert!(
                     (direct - rescaled).abs() <= 1e-14 * (1.0 + direct.abs()),
                     "{id}({x}; {v}): {direct} vs {rescaled}"
                 );
+            }
+        }
+    }
+}
+
+#[test]
+fn kinds_that_hold_at_every_scale_do() {
+    // max(0, s x) / s = max(0, x) and the same for one slope per side (ONNX Relu, LeakyRelu and
+    // PRelu definitions): f(s x; p) / s = f(x; p) for every s > 0.
+    for (id, p) in [
+        ("relu", vec![]),
+        ("leaky_relu", vec![0.01]),
+        ("prelu", vec![0.25]),
+    ] {
+        let k = kind(id);
+        assert!(
+            matches!(k.scale, Some(Scale::Any)),
+            "{id} holds at every scale"
+        );
+        for s in [1e-3, 0.5, 1.702, 7.5, 1e3] {
+            for i in 0..=400 {
+                let x = -20.0 + 40.0 * i as f64 / 400.0;
+                let direct = k.eval(x, &p);
+                assert!((direct - k.eval(s * x, &p) / s).abs() <= 1e-14 * (1.0 + direct.abs()));
             }
         }
     }

@@ -51,7 +51,7 @@ pub const KIND: Kind = Kind {
                     celu(x; 1).",
     piecewise_linear: false,
     // celu(x; alpha) = alpha * celu(x / alpha; 1), the ONNX Celu function body.
-    scale: Some(Scale {
+    scale: Some(Scale::Factor {
         factor: |p| 1.0 / p[0],
         base: &[1.0],
     }),

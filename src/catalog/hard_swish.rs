@@ -2,7 +2,7 @@
 
 use super::emit::{Builder, OpVersion, Unavailable, ops};
 use super::hard_sigmoid::clipped_line;
-use super::kind::{FusedOp, Kind};
+use super::kind::{FusedOp, Kind, Scale};
 use super::numeric::same_f32;
 use super::params::Param;
 
@@ -55,7 +55,12 @@ pub const KIND: Kind = Kind {
                     hard_sigmoid it is. Other slopes are written as the hard form of a swish \
                     (swish-to-hard-swish).",
     piecewise_linear: false,
-    scale: None,
+    // x * relu6(beta x + 3) / 6 = (beta x) * relu6(beta x + 3) / 6 / beta: MobileNetV3's
+    // hard-swish rescaled, as swish is SiLU rescaled.
+    scale: Some(Scale::Factor {
+        factor: |p| p[0],
+        base: &[1.0],
+    }),
     primitive,
 };
 

@@ -49,22 +49,30 @@ pub struct Kind {
     pub numeric_notes: &'static str,
     /// True when every branch of the formula is linear in x.
     pub piecewise_linear: bool,
-    /// An exact change of scale between parameter values, when the formula has one: fitted
-    /// forms of every parameter value are then rescaled fits of one function.
+    /// An exact change of scale, when the formula has one: fitted forms of every parameter value
+    /// are then rescaled fits of one function, and error bounds against another kind are
+    /// rescaled bounds of one pair.
     pub scale: Option<Scale>,
     /// Writes the `primitive` form, a decomposition into basic ops.
     pub primitive: Writer,
 }
 
-/// An exact change of scale: `f(x; p) = f(s x; base) / s` for every x, with `s = factor(p)`.
-/// A fit `g` of `f(.; base)` over `[s lo, s hi]` is then a fit of `f(.; p)` over `[lo, hi]`:
-/// `g(s x) / s`, with every error divided by `s`.
+/// An exact change of scale of the formula.
 #[derive(Debug, Clone, Copy)]
-pub struct Scale {
-    /// `s` for the parameters `p`; a value that is not finite and positive has no rescaling.
-    pub factor: fn(p: &[f64]) -> f64,
-    /// The parameters of the one function every other value is a rescaling of.
-    pub base: &'static [f64],
+pub enum Scale {
+    /// `f(x; p) = f(s x; base) / s` for every x, with `s = factor(p)`. A fit `g` of
+    /// `f(.; base)` over `[s lo, s hi]` is then a fit of `f(.; p)` over `[lo, hi]`: `g(s x) / s`,
+    /// with every error divided by `s`.
+    Factor {
+        /// `s` for the parameters `p`; a value that is not finite and positive has no
+        /// rescaling.
+        factor: fn(p: &[f64]) -> f64,
+        /// The parameters of the one function every other value is a rescaling of.
+        base: &'static [f64],
+    },
+    /// `f(x; p) = f(s x; p) / s` for every x and every `s > 0` (positively homogeneous: ReLU,
+    /// leaky ReLU): any other kind's rescaling applies to it unchanged.
+    Any,
 }
 
 /// A parameter a fused op carries as a float attribute.

@@ -1,7 +1,7 @@
 //! leaky_relu: x for x >= 0, alpha * x below.
 
 use super::emit::{Builder, OpVersion, Unavailable, ops};
-use super::kind::{AttrParam, FusedOp, Kind};
+use super::kind::{AttrParam, FusedOp, Kind, Scale};
 use super::numeric::finite;
 use super::params::Param;
 
@@ -37,7 +37,8 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Exact up to the rounding of alpha * x. Recovery: alpha = -f(-1). A slope of \
                     exactly 1 is the identity and is not identified.",
     piecewise_linear: true,
-    scale: None,
+    // the same slopes on both sides of 0 at every scale.
+    scale: Some(Scale::Any),
     primitive,
 };
 

@@ -1,7 +1,7 @@
 //! prelu: leaky_relu whose slope is an input, usually one value per channel.
 
 use super::emit::{Builder, OpVersion, Unavailable};
-use super::kind::{FusedNode, FusedOp, Kind, Reading};
+use super::kind::{FusedNode, FusedOp, Kind, Reading, Scale};
 use super::leaky_relu;
 use super::params::{Param, ParamValue, Params};
 
@@ -45,7 +45,8 @@ pub const KIND: Kind = Kind {
                     and the scanner tells the two apart from the graph (a slope tensor). \
                     Identification of a per-channel site runs per channel.",
     piecewise_linear: true,
-    scale: None,
+    // the same slopes on both sides of 0 at every scale.
+    scale: Some(Scale::Any),
     primitive,
 };
 

@@ -2,7 +2,7 @@
 
 use super::clip::{self, Bounds};
 use super::emit::{Builder, OpVersion, Unavailable, ops};
-use super::kind::{FusedNode, FusedOp, Kind, Reading};
+use super::kind::{FusedNode, FusedOp, Kind, Reading, Scale};
 use super::numeric::same_f32;
 
 pub const KIND: Kind = Kind {
@@ -39,7 +39,8 @@ pub const KIND: Kind = Kind {
     numeric_notes: "Exact in every precision. Identified only when f(-1) and f(-40) are exactly \
                     0, so a LeakyRelu with a tiny alpha is reported as leaky_relu, not relu.",
     piecewise_linear: true,
-    scale: None,
+    // max(0, s x) / s = max(0, x) for s > 0.
+    scale: Some(Scale::Any),
     primitive,
 };
 

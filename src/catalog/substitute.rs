@@ -12,7 +12,7 @@
 use std::sync::OnceLock;
 
 use super::get;
-use super::kind::Kind;
+use super::kind::{Kind, Scale};
 use super::numeric::same_f32;
 use super::params::Params;
 
@@ -329,9 +329,43 @@ const TIE: f64 = 1e-12;
 /// 40,000, and never below the error sampled on the dense grid (checked in the tests).
 ///
 /// A bound is computed once per process for the same kinds, parameters and ends (see [`memo`]):
-/// a model's sites mostly share them.
+/// a model's sites mostly share them. When both kinds rescale by the same factor `s` (see
+/// [`Scale`]; swish to hard-swish with the same beta, or to ReLU at any beta),
+/// `|f(x) - g(x)| = |f0(s x) - g0(s x)| / s`, so the bound is that of the two base functions
+/// over `[s lo, s hi]`, divided by `s`: one computation serves every beta.
 pub fn max_abs_error(from: (&Kind, &[f64]), to: (&Kind, &[f64]), lo: f64, hi: f64) -> ErrorBound {
-    memo::remembered(from, to, lo, hi, || computed(from, to, lo, hi))
+    let (from, to, s) = match shared_scale(from, to) {
+        Some((from_base, to_base, s)) => ((from.0, from_base), (to.0, to_base), s),
+        None => (from, to, 1.0),
+    };
+    let (lo, hi) = (lo * s, hi * s);
+    let base = memo::remembered(from, to, lo, hi, || computed(from, to, lo, hi));
+    ErrorBound {
+        value: base.value / s,
+        at: base.at / s,
+    }
+}
+
+/// The parameters to compute the bound with, for each side, and the factor `s` to divide it
+/// by: both sides' base parameters when both rescale by the same finite, positive factor; one
+/// side's base and the other's own parameters when the other holds at every scale.
+fn shared_scale<'a>(
+    from: (&'a Kind, &'a [f64]),
+    to: (&'a Kind, &'a [f64]),
+) -> Option<(&'a [f64], &'a [f64], f64)> {
+    if from.1.len() != from.0.params.len() || to.1.len() != to.0.params.len() {
+        return None;
+    }
+    let (from_base, to_base, s) = match (from.0.scale?, to.0.scale?) {
+        (Scale::Factor { factor, base }, Scale::Factor { factor: g, base: b }) => {
+            let s = factor(from.1);
+            (g(to.1) == s).then_some((base, b, s))?
+        }
+        (Scale::Factor { factor, base }, Scale::Any) => (base, to.1, factor(from.1)),
+        (Scale::Any, Scale::Factor { factor, base }) => (from.1, base, factor(to.1)),
+        (Scale::Any, Scale::Any) => return None,
+    };
+    (s.is_finite() && s > 0.0).then_some((from_base, to_base, s))
 }
 
 /// [`max_abs_error`] computed afresh.

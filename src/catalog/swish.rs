@@ -58,7 +58,7 @@ pub const KIND: Kind = Kind {
                     fits of SiLU.",
     piecewise_linear: false,
     // x * sigmoid(beta x) = (beta x) * sigmoid(beta x) / beta: swish is SiLU rescaled.
-    scale: Some(Scale {
+    scale: Some(Scale::Factor {
         factor: |p| p[0],
         base: &[1.0],
     }),

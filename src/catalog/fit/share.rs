@@ -34,7 +34,9 @@ pub fn rescaled(
     tails: (f64, f64),
     round: fn(f64) -> f64,
 ) -> Option<(Pwl, FitBound)> {
-    let Scale { factor, base } = kind.scale?;
+    let Some(Scale::Factor { factor, base }) = kind.scale else {
+        return None;
+    };
     let s = factor(p);
     if !(s.is_finite() && s > 0.0) {
         return None;

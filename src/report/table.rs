@@ -11,17 +11,19 @@ use unicode_width::UnicodeWidthStr;
 /// Spaces between two columns.
 const GAP: usize = 2;
 
+/// Fewer terminal columns than this are not a window to fit (a pseudo-terminal may report 0):
+/// the table is then laid out unwrapped.
+const NARROWEST: u16 = 40;
+
 /// Renders rows under a header, each column as wide as its widest cell (or as the terminal
 /// allows), two spaces apart.
 pub fn render(header: &[&str], rows: &[Vec<String>]) -> String {
     let mut table = Table::new();
-    table
-        .load_preset(NOTHING)
-        .set_content_arrangement(ContentArrangement::Dynamic)
-        .set_header(header.to_vec());
+    table.load_preset(NOTHING).set_header(header.to_vec());
     for r in rows {
         table.add_row(r.clone());
     }
+    table.set_content_arrangement(arrangement(table.width()));
     let last = header.len().saturating_sub(1);
     for (i, column) in table.column_iter_mut().enumerate() {
         column.set_padding((0, if i == last { 0 } else { GAP as u16 }));
@@ -32,6 +34,14 @@ pub fn render(header: &[&str], rows: &[Vec<String>]) -> String {
         out.push('\n');
     }
     out
+}
+
+/// How to lay out a table for a terminal of `width` columns (`None` off a terminal).
+fn arrangement(width: Option<u16>) -> ContentArrangement {
+    match width {
+        Some(w) if w < NARROWEST => ContentArrangement::Disabled,
+        _ => ContentArrangement::Dynamic,
+    }
 }
 
 /// Writes the table [`render`] lays out where nothing wraps, one row at a time, so that a
@@ -92,5 +102,17 @@ mod tests {
         let mut written = Vec::new();
         write_unwrapped(&mut written, &header, rows.len(), |i| rows[i].clone()).unwrap();
         assert_eq!(String::from_utf8(written).unwrap(), render(&header, &rows));
+    }
+
+    /// A terminal reporting 0 columns (some pseudo-terminals do) gets the unwrapped table, not
+    /// one character per line.
+    #[test]
+    fn a_terminal_without_columns_is_not_fitted() {
+        assert!(matches!(arrangement(Some(0)), ContentArrangement::Disabled));
+        assert!(matches!(
+            arrangement(Some(120)),
+            ContentArrangement::Dynamic
+        ));
+        assert!(matches!(arrangement(None), ContentArrangement::Dynamic));
     }
 }

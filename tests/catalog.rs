@@ -632,20 +632,11 @@ fn rescaled_swish_bounds_at_any_beta_match_the_formulas() {
     // quadratic part, where the worst case lies; at beta = 1 it is the 0.1423 of the
     // hard-swish literature's comparison (common practice).
     for beta in [0.25, 0.5, 1.0, 1.702, 4.0] {
+        let swish = |x: f64| x / (1.0 + (-beta * x).exp());
         let bound = over_reals("swish", &[beta], "hard_swish", &[beta]);
-        let dense = (0..=400_000)
-            .map(|i| (-10.0 + 20.0 * i as f64 / 400_000.0) / beta)
-            .map(|x| {
-                let swish = x / (1.0 + (-beta * x).exp());
-                let hard = x * (beta * x + 3.0).clamp(0.0, 6.0) / 6.0;
-                (swish - hard).abs()
-            })
-            .fold(0.0, f64::max);
-        assert!(
-            bound.value >= dense * (1.0 - 1e-12) && bound.value <= dense + 1e-9,
-            "beta {beta}: bound {} against the dense grid's {dense}",
-            bound.value
-        );
+        bound_is_the_dense_maximum(bound, beta, &|x| {
+            swish(x) - x * (beta * x + 3.0).clamp(0.0, 6.0) / 6.0
+        });
         close(
             bound.value * beta,
             0.1423,
@@ -656,15 +647,7 @@ fn rescaled_swish_bounds_at_any_beta_match_the_formulas() {
         // W(1/e) / b = 0.2784645 / b (W the Lambert function; from memory, checked here on the
         // dense grid).
         let bound = over_reals("swish", &[beta], "relu", &[]);
-        let dense = (0..=400_000)
-            .map(|i| (-10.0 + 20.0 * i as f64 / 400_000.0) / beta)
-            .map(|x| (x / (1.0 + (-beta * x).exp()) - x.max(0.0)).abs())
-            .fold(0.0, f64::max);
-        assert!(
-            bound.value >= dense * (1.0 - 1e-12) && bound.value <= dense + 1e-9,
-            "beta {beta}: bound {} against the dense grid's {dense}",
-            bound.value
-        );
+        bound_is_the_dense_maximum(bound, beta, &|x| swish(x) - x.max(0.0));
         close(
             bound.value * beta,
             0.2784645,
@@ -672,4 +655,18 @@ fn rescaled_swish_bounds_at_any_beta_match_the_formulas() {
             "swish vs ReLU, times beta",
         );
     }
+}
+
+/// `bound` is the maximum of |difference| on a dense grid of [-10, 10] / beta (never below it,
+/// at most 1e-9 above).
+fn bound_is_the_dense_maximum(bound: ErrorBound, beta: f64, difference: &dyn Fn(f64) -> f64) {
+    let dense = (0..=400_000)
+        .map(|i| (-10.0 + 20.0 * i as f64 / 400_000.0) / beta)
+        .map(|x| difference(x).abs())
+        .fold(0.0, f64::max);
+    assert!(
+        bound.value >= dense * (1.0 - 1e-12) && bound.value <= dense + 1e-9,
+        "beta {beta}: bound {} against the dense grid's {dense}",
+        bound.value
+    );
 }

@@ -235,6 +235,14 @@ fn int64(name: &str, v: i64) -> TensorProto {
     }
 }
 
+/// One sample for the loop models: `v0` = [1, 2].
+fn v0_samples() -> Vec<Sample> {
+    vec![vec![NamedTensor::new(
+        "v0",
+        Tensor::from_shape(&[2], &[1.0f32, 2.0]).unwrap(),
+    )]]
+}
+
 /// A Loop of 3 iterations: carried v <- v + 1, scan output (v + 1) * 2 + iteration_num; `cond`
 /// is the body's condition output (Identity of its input, or a comparison when `stops`).
 fn loop_model(stops: bool) -> Model {
@@ -302,10 +310,7 @@ fn loop_model(stops: bool) -> Model {
 #[test]
 fn an_unrolled_loop_chains_carried_values_and_stacks_scan_outputs() {
     let model = loop_model(false);
-    let samples = vec![vec![NamedTensor::new(
-        "v0",
-        Tensor::from_shape(&[2], &[1.0f32, 2.0]).unwrap(),
-    )]];
+    let samples = v0_samples();
     let tract = runnable::load(&model, &samples, DEFAULT_MEMORY_CEILING).unwrap();
     let values = run_samples(&tract, &samples, &[], "loop").unwrap();
     // v: [1,2] -> [2,3] -> [3,4] -> [4,5]; scanned: 2v + k for k = 0, 1, 2.
@@ -324,10 +329,7 @@ fn an_unrolled_loop_chains_carried_values_and_stacks_scan_outputs() {
 #[test]
 fn a_loop_whose_body_decides_when_to_stop_is_refused_in_one_line() {
     let model = loop_model(true);
-    let samples = vec![vec![NamedTensor::new(
-        "v0",
-        Tensor::from_shape(&[2], &[1.0f32, 2.0]).unwrap(),
-    )]];
+    let samples = v0_samples();
     let err = format!(
         "{:#}",
         runnable::load(&model, &samples, DEFAULT_MEMORY_CEILING)
@@ -445,10 +447,7 @@ fn a_loop_inside_a_loop_body_is_unrolled_in_turn() {
     graph.initializer.push(int64("outer_trips", 2));
     graph.output.truncate(1);
     let model = Model::from_proto(proto, PathBuf::new());
-    let samples = vec![vec![NamedTensor::new(
-        "v0",
-        Tensor::from_shape(&[2], &[1.0f32, 2.0]).unwrap(),
-    )]];
+    let samples = v0_samples();
     let tract = runnable::load(&model, &samples, DEFAULT_MEMORY_CEILING).unwrap();
     let values = run_samples(&tract, &samples, &[], "nested loops").unwrap();
     assert_close(

@@ -422,24 +422,24 @@ fn the_same_site_reached_by_the_samples_passes() {
     assert!(local > 0.0 && local <= 0.14227761953270035, "{s3:#}");
 }
 
+/// Run options whose inputs never take door-chime's then-branch (see [`door_chime_audit`]).
+const NEVER_THEN: [&str; 8] = [
+    "--dim",
+    "batch=1",
+    "--dist",
+    "uniform",
+    "--range",
+    "-2,-1",
+    "--no-latency",
+    "--json",
+];
+
 #[test]
 fn drift_of_two_files_counts_only_the_sites_that_differ() {
     // A model against itself: its unreached branch site is not rewritten, so it does not count.
     let door = repo("sample-models/door-chime-keywords.onnx");
     let d = door.to_str().unwrap();
-    let out = actswap(&[
-        "drift",
-        d,
-        d,
-        "--dim",
-        "batch=1",
-        "--dist",
-        "uniform",
-        "--range",
-        "-2,-1",
-        "--no-latency",
-        "--json",
-    ]);
+    let out = actswap(&[&["drift", d, d][..], &NEVER_THEN].concat());
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
     assert_eq!(json(&out)["verdict"], "pass");
 }
@@ -448,24 +448,16 @@ fn drift_of_two_files_counts_only_the_sites_that_differ() {
 fn batch_counts_unmeasured_models_and_exits_1() {
     let tmp = tempfile::tempdir().unwrap();
     let out_dir = tmp.path().join("out");
-    let out = actswap(&[
+    let door = repo("sample-models/door-chime-keywords.onnx");
+    let head = [
         "batch",
-        repo("sample-models/door-chime-keywords.onnx")
-            .to_str()
-            .unwrap(),
+        door.to_str().unwrap(),
         "-o",
         path(&out_dir),
         "--to",
         "silu=hard_swish",
-        "--dim",
-        "batch=1",
-        "--dist",
-        "uniform",
-        "--range",
-        "-2,-1",
-        "--no-latency",
-        "--json",
-    ]);
+    ];
+    let out = actswap(&[&head[..], &NEVER_THEN].concat());
     assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
     let v = json(&out);
     assert_eq!(v["models"][0]["verdict"], "unmeasured", "{v:#}");

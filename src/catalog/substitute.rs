@@ -583,13 +583,25 @@ fn settled(sign: f64, err: &dyn Fn(f64) -> f64) -> f64 {
 }
 
 /// Golden-section search for the maximum of `g` on `[a, b]`: (value, at).
-pub(crate) fn golden_max(g: &dyn Fn(f64) -> f64, mut a: f64, mut b: f64) -> (f64, f64) {
+fn golden_max(g: &dyn Fn(f64) -> f64, a: f64, b: f64) -> (f64, f64) {
+    let (value, at, _) = golden_search(g, a, b, &|_, _| false);
+    (value, at)
+}
+
+/// Golden-section search for the maximum of `g` on `[a, b]`, to f64 resolution or until
+/// `enough` holds for the bracket: the best probe's value, where it is, and the last bracket.
+pub(crate) fn golden_search(
+    g: &dyn Fn(f64) -> f64,
+    mut a: f64,
+    mut b: f64,
+    enough: &dyn Fn(f64, f64) -> bool,
+) -> (f64, f64, (f64, f64)) {
     const R: f64 = 0.618_033_988_749_894_9; // (sqrt 5 - 1) / 2
     let mut c = b - R * (b - a);
     let mut d = a + R * (b - a);
     let (mut gc, mut gd) = (g(c), g(d));
     for _ in 0..300 {
-        if b - a <= 4.0 * f64::EPSILON * (a.abs() + b.abs()) {
+        if b - a <= 4.0 * f64::EPSILON * (a.abs() + b.abs()) || enough(a, b) {
             break;
         }
         if gc >= gd {
@@ -602,7 +614,8 @@ pub(crate) fn golden_max(g: &dyn Fn(f64) -> f64, mut a: f64, mut b: f64) -> (f64
             gd = g(d);
         }
     }
-    if gc >= gd { (gc, c) } else { (gd, d) }
+    let (value, at) = if gc >= gd { (gc, c) } else { (gd, d) };
+    (value, at, (a, b))
 }
 
 #[cfg(test)]

@@ -15,7 +15,7 @@
 //! The reported values are the computed maxima plus a margin of 1e-9 relative and 1e-12
 //! absolute, so that f64 rounding of the evaluation cannot put a bound below the error.
 
-use super::super::substitute::ErrorBound;
+use super::super::substitute::{ErrorBound, golden_search};
 use super::{FitRange, Pwl};
 
 /// Samples per smooth piece inside the range (ends included).
@@ -255,32 +255,14 @@ fn refine(f: &dyn Fn(f64) -> f64, mut best: ErrorBound, mut peaks: Vec<Peak>) ->
 /// `curvature` leaves at most [`REFINED_TO`] between the best probe and the largest value (the
 /// nearest probe is within 0.382 of the bracket's width of it), which is then added; without a
 /// finite curvature, it runs to f64 resolution.
-fn golden(g: &dyn Fn(f64) -> f64, mut a: f64, mut b: f64, curvature: f64) -> ErrorBound {
-    const R: f64 = 0.618_033_988_749_894_9; // (sqrt 5 - 1) / 2
+fn golden(g: &dyn Fn(f64) -> f64, a: f64, b: f64, curvature: f64) -> ErrorBound {
     let left = |a: f64, b: f64| curvature * (b - a) * (b - a) / 8.0;
-    let mut c = b - R * (b - a);
-    let mut d = a + R * (b - a);
-    let (mut gc, mut gd) = (g(c), g(d));
-    for _ in 0..300 {
-        if b - a <= 4.0 * f64::EPSILON * (a.abs() + b.abs()) || left(a, b) <= REFINED_TO {
-            break;
-        }
-        if gc >= gd {
-            (b, d, gd) = (d, c, gc);
-            c = b - R * (b - a);
-            gc = g(c);
-        } else {
-            (a, c, gc) = (c, d, gd);
-            d = a + R * (b - a);
-            gd = g(d);
-        }
-    }
+    let (value, at, (a, b)) = golden_search(g, a, b, &|a, b| left(a, b) <= REFINED_TO);
     let rest = if curvature.is_finite() {
         left(a, b)
     } else {
         0.0
     };
-    let (value, at) = if gc >= gd { (gc, c) } else { (gd, d) };
     ErrorBound {
         value: value + rest,
         at,

@@ -14,7 +14,7 @@ use super::blame::panicking_node;
 use super::guard::{Failure, catch, guarded};
 use super::names::NodeOrigins;
 use super::signature::bind;
-use super::{NamedTensor, RunError, TractModel, ceiling, symbols};
+use super::{NamedTensor, RunError, TractModel, ceiling, symbols, typing};
 
 /// The stage of typing, as errors name it.
 const TYPE: &str = "type the model";
@@ -86,7 +86,7 @@ impl TractModel {
             })
             .collect::<Result<Vec<_>, _>>()?;
         let model = self.fixed(&bound, &outlets)?;
-        let typed = match catch(|| model.into_typed()) {
+        let typed = match catch(|| typing::into_typed(model)) {
             Ok(typed) => typed,
             Err(Failure::Panic(message)) => return Err(self.blame(&bound, &outlets, message)),
             Err(failure) => return Err(self.origins.attribute(failure.at(TYPE))),
@@ -121,7 +121,11 @@ impl TractModel {
 
     /// The model with every dim fixed by the tensors `bound` to its inputs and `outlets` as its
     /// outputs, ready to type.
-    fn fixed(&self, bound: &[&Tensor], outlets: &[OutletId]) -> Result<InferenceModel, RunError> {
+    pub(super) fn fixed(
+        &self,
+        bound: &[&Tensor],
+        outlets: &[OutletId],
+    ) -> Result<InferenceModel, RunError> {
         let mut model = self.model.clone();
         let sizes = symbols::learn(&model, bound)?;
         symbols::concretise(&mut model, &sizes);

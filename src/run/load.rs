@@ -15,7 +15,7 @@ use super::execute::Compilation;
 use super::guard::guarded;
 use super::names::{NodeOrigins, make_node_names_unique};
 use super::signature::{InputSpec, read_inputs};
-use super::{RunError, framework};
+use super::{RunError, framework, weights};
 
 /// A model parsed by tract, not yet typed or optimized; see [`TractModel::compile`] and
 /// [`TractModel::run`].
@@ -82,12 +82,23 @@ fn load(mut proto: ModelProto, model_dir: Option<&Path>) -> Result<TractModel, R
     if model_dir.is_none() {
         refuse_external_data(graph)?;
     }
+    let lifted = weights::lift(graph);
     let onnx = framework::corrected_onnx();
-    let parsed =
+    let mut parsed =
         guarded("load the model", || onnx.parse(&proto, dir)).map_err(|e| origins.attribute(e))?;
     if !parsed.unresolved_inputs.is_empty() {
         return Err(RunError::UndefinedTensors(parsed.unresolved_inputs));
     }
+    guarded("load the initializers", || {
+        weights::restore(
+            &onnx,
+            &mut parsed.model,
+            &parsed.outlets_by_name,
+            &lifted,
+            dir,
+        )
+    })
+    .map_err(|e| origins.attribute(e))?;
     let unsupported: Vec<String> = parsed
         .model
         .nodes()

@@ -45,7 +45,9 @@ mod signature;
 mod swish;
 mod symbols;
 mod tensor;
+mod typing;
 mod unary;
+mod weights;
 
 pub use ceiling::DEFAULT_MEMORY_CEILING;
 pub use error::RunError;

@@ -19,13 +19,13 @@ pub use summary::{
     BatchContext, BatchReport, Judgement, ModelRow, ModelSummary, Totals, Verdict, summarize,
 };
 
+use crate::measure::range::InputRange;
 use crate::measure::{self, CompareOptions, DriftReport, SitePair};
 use crate::onnx::{Model, ModelIndex};
 use crate::plan::ranges::FitRanges;
 use crate::plan::{Action, Plan};
 use crate::rewrite::{self, Applied};
-use crate::run::{self, Sample};
-use crate::scan::Site;
+use crate::run;
 
 /// One model scanned, planned, rewritten in memory, checked against its target and measured.
 pub struct Audit {
@@ -54,18 +54,15 @@ impl Audit {
 }
 
 /// The ranges fitted forms are fitted over: the declared ones, and, when a site may get a
-/// fitted form, each top-level site's input range observed by running the original model on
-/// `samples` (calibration).
+/// fitted form, the input ranges `observe` gives (calibration: by site id, as observed on the
+/// samples).
 pub fn fit_ranges(
     conversion: &Conversion,
-    index: &ModelIndex,
-    sites: &[Site],
-    samples: &[Sample],
-    memory_ceiling: u64,
+    observe: impl FnOnce() -> Result<Vec<(String, InputRange)>>,
 ) -> Result<FitRanges> {
     let mut ranges = conversion.fit_ranges().clone();
     if conversion.may_fit() {
-        for (id, r) in measure::calibrate::observe(index, sites, samples, memory_ceiling)? {
+        for (id, r) in observe()? {
             ranges.observe(&id, r.min, r.max);
         }
     }
@@ -98,13 +95,12 @@ pub fn audit(
         run::input_specs(&model.encode()).with_context(|| format!("'{}'", path.display()))?;
     let loaded = inputs.load(&specs)?;
     let sites = conversion.sites(&index, path)?;
-    let ranges = fit_ranges(
-        conversion,
-        &index,
-        &sites,
-        &loaded.samples,
-        opts.memory_ceiling,
-    )?;
+    // The original model runs once: its values give calibration its ranges and drift its
+    // reference.
+    let original = measure::capture_original(&index, &sites, &loaded.samples, opts)?;
+    let ranges = fit_ranges(conversion, || {
+        measure::calibrate::ranges(&index, &sites, original.main())
+    })?;
     let plan = conversion.plan_sites(sites, &index, &ranges);
     let (rewritten, applied) = rewrite::apply(&model, &index, &plan)?;
     let (budgets, budget_source) = conversion.budget(opts.budgets);
@@ -137,6 +133,7 @@ pub fn audit(
         Vec::new(),
         &loaded.samples,
         &opts,
+        Some(original),
     )?;
     drop(new_index);
     Ok(Audit {

@@ -6,6 +6,7 @@ use std::process::ExitCode;
 use anyhow::{Context, Result};
 
 use crate::audit::{self, Judgement, Verdict, readiness};
+use crate::measure;
 use crate::onnx::{Model, ModelIndex, SaveOptions};
 use crate::report::footer::{self, Judged};
 use crate::report::json::{AppliedJson, SwapJson};
@@ -79,13 +80,9 @@ pub fn run(args: Args) -> Result<ExitCode> {
                 .with_context(|| format!("'{}'", args.model.display()))?;
             let samples = inputs.load(&specs)?.samples;
             let sites = conversion.sites(&index, &args.model)?;
-            let ranges = audit::fit_ranges(
-                &conversion,
-                &index,
-                &sites,
-                &samples,
-                DEFAULT_MEMORY_CEILING,
-            )?;
+            let ranges = audit::fit_ranges(&conversion, || {
+                measure::calibrate::observe(&index, &sites, &samples, DEFAULT_MEMORY_CEILING)
+            })?;
             conversion.plan_sites(sites, &index, &ranges)
         }
         None => conversion.plan(&index, &args.model)?,

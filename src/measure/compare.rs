@@ -81,11 +81,80 @@ pub fn compare_models(
     let a = ModelIndex::build(original).context("original model")?;
     let b = ModelIndex::build(rewritten).context("rewritten model")?;
     let (pairs, unmatched) = super::pairs::by_output(&a, &b);
-    compare(&a, &b, &pairs, unmatched, samples, opts)
+    compare(&a, &b, &pairs, unmatched, samples, opts, None)
+}
+
+/// How both models are compiled: without latency only values are wanted, so they run as
+/// typed, which costs time linear in the node count.
+fn compilation(opts: &CompareOptions) -> Compilation {
+    match opts.latency {
+        Some(_) => Compilation::Optimized,
+        None => Compilation::Typed,
+    }
+}
+
+/// The tensors [`compare`] captures in the original model for `sites`: each site's input and
+/// output, by graph.
+fn site_values<'s>(sites: impl Iterator<Item = &'s Site>) -> BTreeMap<usize, BTreeSet<String>> {
+    let mut asks: BTreeMap<usize, BTreeSet<String>> = BTreeMap::new();
+    for site in sites {
+        let values = asks.entry(site.graph_index).or_default();
+        values.insert(site.input.clone());
+        values.insert(site.output.clone());
+    }
+    asks
+}
+
+/// The original model's values at its sites, captured once before [`compare`] for a caller
+/// that reads them first (audit's calibration), so that the model runs once.
+pub struct OriginalValues {
+    asked: BTreeMap<usize, BTreeSet<String>>,
+    compilation: Compilation,
+    captures: Captures,
+}
+
+impl OriginalValues {
+    /// The main graph's values, one per sample (the inputs included).
+    pub fn main(&self) -> &[Values] {
+        self.captures.main()
+    }
+
+    /// Whether these values include `asks` and were computed as [`compare`] will compile.
+    fn covers(&self, asks: &BTreeMap<usize, BTreeSet<String>>, compilation: Compilation) -> bool {
+        self.compilation == compilation
+            && asks
+                .iter()
+                .all(|(g, names)| self.asked.get(g).is_some_and(|have| names.is_subset(have)))
+    }
+}
+
+/// Runs the original model on `samples` and captures every site's input and output as
+/// [`compare`] would with `opts`, for the sites whose graph can be reached.
+pub fn capture_original(
+    index: &ModelIndex,
+    sites: &[Site],
+    samples: &[Sample],
+    opts: &CompareOptions,
+) -> Result<OriginalValues> {
+    let compilation = compilation(opts);
+    let side = Side::new(index, "original model", opts.memory_ceiling, compilation);
+    let asked = site_values(
+        sites
+            .iter()
+            .filter(|s| subgraphs::reach(index, s.graph_index).is_ok()),
+    );
+    Ok(OriginalValues {
+        captures: side.capture(samples, asked.clone())?,
+        asked,
+        compilation,
+    })
 }
 
 /// Compares `rewritten` with `original` on `samples`, site by site for `pairs`; `unmatched`
 /// are the sites found in only one model. See the module doc.
+///
+/// `captured` holds the original model's values when they were captured before
+/// ([`capture_original`]); the original model then runs only for what they lack.
 pub fn compare(
     original: &ModelIndex,
     rewritten: &ModelIndex,
@@ -93,14 +162,10 @@ pub fn compare(
     unmatched: Vec<UnmatchedSite>,
     samples: &[Sample],
     opts: &CompareOptions,
+    captured: Option<OriginalValues>,
 ) -> Result<DriftReport> {
     ensure!(!samples.is_empty(), "no input samples to compare on");
-    // Without latency only values are wanted: both models run as typed, which costs time linear
-    // in the node count, and one at a time, so only one holds its weights.
-    let compilation = match opts.latency {
-        Some(_) => Compilation::Optimized,
-        None => Compilation::Typed,
-    };
+    let compilation = compilation(opts);
     let a = Side::new(original, "original model", opts.memory_ceiling, compilation);
     let b = Side::new(
         rewritten,
@@ -115,18 +180,24 @@ pub fn compare(
                 .and_then(|()| subgraphs::reach(rewritten, p.b.graph_index))
         })
         .collect();
-    let mut asks_a: BTreeMap<usize, BTreeSet<String>> = BTreeMap::new();
+    let reached: Vec<&SitePair> = pairs
+        .iter()
+        .zip(&reach)
+        .filter(|(_, r)| r.is_ok())
+        .map(|(p, _)| p)
+        .collect();
+    let asks_a = site_values(reached.iter().map(|p| &p.a));
     let mut asks_b: BTreeMap<usize, BTreeSet<String>> = BTreeMap::new();
-    for (p, _) in pairs.iter().zip(&reach).filter(|(_, r)| r.is_ok()) {
-        let asks = asks_a.entry(p.a.graph_index).or_default();
-        asks.insert(p.a.input.clone());
-        asks.insert(p.a.output.clone());
+    for p in &reached {
         asks_b
             .entry(p.b.graph_index)
             .or_default()
             .insert(p.b.output.clone());
     }
-    let cap_a = a.capture(samples, asks_a)?;
+    let cap_a = match captured.filter(|c| c.covers(&asks_a, compilation)) {
+        Some(c) => c.captures,
+        None => a.capture(samples, asks_a)?,
+    };
     let cap_b = b.capture(samples, asks_b)?;
     let pairs: Vec<Pair> = pairs
         .iter()

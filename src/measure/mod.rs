@@ -20,7 +20,7 @@ mod stats;
 pub mod subgraphs;
 
 pub use budget::{Budgets, DEFAULT_BUDGET, Offender, Scope};
-pub use compare::{CompareOptions, compare, compare_models};
+pub use compare::{CompareOptions, OriginalValues, capture_original, compare, compare_models};
 pub use latency::LatencyOptions;
 pub use metrics::{Drift, Tolerance, Top1};
 pub use pairs::SitePair;

@@ -2,6 +2,8 @@
 //! f64 with the model's own (usually float32-rounded) constants. Constants of more than one element
 //! make the function per-channel: channel `c` reads element `c` of each of them.
 
+use smallvec::SmallVec;
+
 use crate::catalog::{self, FusedNode, Kind};
 use crate::onnx::attrs;
 use crate::onnx::proto::NodeProto;
@@ -69,7 +71,7 @@ pub enum Op {
 pub struct Step {
     pub op: Op,
     /// Operands in input order (inline: most ops take one to three).
-    pub args: smallvec::SmallVec<[Operand; 3]>,
+    pub args: SmallVec<[Operand; 3]>,
 }
 
 /// A constant operand.
@@ -79,11 +81,12 @@ pub struct Const {
     pub dims: Vec<usize>,
 }
 
-/// The compiled chain.
+/// The compiled chain (held inline: a scan compiles a few chains per node, most of them found
+/// in the identification cache by their key).
 #[derive(Debug, Clone)]
 pub struct Expr {
-    pub steps: Vec<Step>,
-    pub consts: Vec<std::rc::Rc<Const>>,
+    pub steps: SmallVec<[Step; MAX_CHAIN]>,
+    pub consts: SmallVec<[std::rc::Rc<Const>; 8]>,
     /// 1 for a scalar function, else the element count shared by every multi-element constant.
     pub channels: usize,
     /// Shape of the multi-element constants, when there are any.
@@ -174,13 +177,13 @@ impl Expr {
         self.steps.last().map_or(x, |_| vals[self.steps.len() - 1])
     }
 
-    /// A key equal for chains that compute the same function (same ops, wiring and constants),
-    /// so identification runs once per distinct spelling. Every part is length-prefixed, so
-    /// different chains never share a key.
-    pub fn key(&self) -> Vec<u64> {
-        let mut k = Vec::with_capacity(4 * self.steps.len() + 8);
+    /// Writes into `k` a key equal for chains that compute the same function (same ops, wiring
+    /// and constants), so identification runs once per distinct spelling. Every part is
+    /// length-prefixed, so different chains never share a key.
+    pub fn write_key(&self, k: &mut Vec<u64>) {
+        k.clear();
         for s in &self.steps {
-            s.op.encode(&mut k);
+            s.op.encode(k);
             k.push(s.args.len() as u64);
             k.extend(s.args.iter().map(|a| match *a {
                 Operand::X => 1 << 32,
@@ -193,7 +196,6 @@ impl Expr {
             k.push(c.values.len() as u64);
             k.extend(c.values.iter().map(|v| v.to_bits()));
         }
-        k
     }
 }
 

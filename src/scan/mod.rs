@@ -17,6 +17,7 @@ use std::rc::Rc;
 
 use schemars::JsonSchema;
 use serde::Serialize;
+use smallvec::SmallVec;
 
 use crate::catalog::{self, ConstInput, FusedNode, Kind, Params};
 use crate::onnx::index::{ABSENT, GraphIndex, ModelIndex, TensorId};
@@ -97,10 +98,14 @@ struct GraphScan<'a, 'm> {
     pos: Vec<usize>,
     /// Each node's element-wise step (None: not element-wise).
     ops: Vec<Option<Op>>,
+    /// How many of each node's inputs carry data ([`expr::data_inputs`]).
+    data_inputs: Vec<usize>,
     /// Constant values by tensor id, filled on first use (inner None: not a constant).
     consts: Vec<Option<Option<Rc<Const>>>>,
     covered: Vec<bool>,
     cache: &'a mut Cache,
+    /// The key of the chain being identified (one buffer for all).
+    key: Vec<u64>,
 }
 
 impl<'a, 'm> GraphScan<'a, 'm> {
@@ -123,9 +128,11 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             types,
             pos,
             ops: graph.nodes.iter().map(|n| expr::op_of(n, opset)).collect(),
+            data_inputs: graph.nodes.iter().map(expr::data_inputs).collect(),
             consts: vec![None; graph.tensor_count()],
             covered: vec![false; graph.nodes.len()],
             cache,
+            key: Vec::new(),
         }
     }
 
@@ -152,7 +159,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     fn inputs(&self, n: usize) -> &'a [TensorId] {
         let graph: &'a GraphIndex<'m> = self.graph;
         let all = graph.node_inputs(n);
-        &all[..expr::data_inputs(&graph.nodes[n]).min(all.len())]
+        &all[..self.data_inputs[n].min(all.len())]
     }
 
     /// Node `n`'s output, when it has exactly one.
@@ -267,14 +274,13 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     /// topological order).
     fn chains(&mut self, n: usize) -> Vec<(u32, Vec<usize>)> {
         let mut out = Vec::new();
+        // The chain's nodes, kept in topological order.
         let mut set: Vec<usize> = vec![n];
         let mut frontier: Vec<u32> = Vec::new();
         self.add_dynamic_inputs(n, &mut frontier);
         while !frontier.is_empty() && set.len() <= MAX_CHAIN {
             if frontier.len() == 1 {
-                let mut nodes = set.clone();
-                nodes.sort_by_key(|&i| self.pos[i]);
-                out.push((frontier[0], nodes));
+                out.push((frontier[0], set.clone()));
             }
             // Expand the frontier tensor produced last.
             let (k, p) = match frontier
@@ -290,7 +296,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 break;
             }
             frontier.swap_remove(k);
-            set.push(p);
+            set.insert(set.partition_point(|&i| self.pos[i] < self.pos[p]), p);
             self.add_dynamic_inputs(p, &mut frontier);
         }
         out
@@ -319,13 +325,13 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         if !nonlinear || integer || expr.channels > MAX_CHANNELS {
             return None;
         }
-        let key = expr.key();
-        let found = match self.cache.get(&key) {
+        expr.write_key(&mut self.key);
+        let found = match self.cache.get(self.key.as_slice()) {
             Some(r) => r.clone(),
             None => {
                 let r = catalog::identify_channels(&|x, c| expr.eval(x, c), expr.channels, None)
                     .map(|(kind, params)| Identified { kind, params });
-                self.cache.insert(key, r.clone());
+                self.cache.insert(self.key.clone(), r.clone());
                 r
             }
         }?;
@@ -337,14 +343,14 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     }
 
     fn compile(&mut self, input: u32, nodes: &[usize]) -> Option<Expr> {
-        let mut steps = Vec::with_capacity(nodes.len());
-        let mut consts: Vec<Rc<Const>> = Vec::new();
+        let mut steps = SmallVec::new();
+        let mut consts: SmallVec<[Rc<Const>; 8]> = SmallVec::new();
         // Chains are short: linear lookups beat hashing here.
-        let mut const_ids: Vec<u32> = Vec::new();
-        let mut step_outputs: Vec<u32> = Vec::with_capacity(nodes.len());
+        let mut const_ids: SmallVec<[u32; 8]> = SmallVec::new();
+        let mut step_outputs: SmallVec<[u32; MAX_CHAIN]> = SmallVec::new();
         for &n in nodes {
             let op = self.ops[n].clone()?;
-            let mut args = smallvec::SmallVec::new();
+            let mut args = SmallVec::new();
             for &id in self.inputs(n) {
                 let a = if id == ABSENT {
                     Operand::None
@@ -364,15 +370,11 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             step_outputs.push(self.output(n)?);
             steps.push(Step { op, args });
         }
-        let multi: Vec<&Const> = consts
-            .iter()
-            .map(|c| &**c)
-            .filter(|c| c.values.len() > 1)
-            .collect();
-        let channels = multi.first().map_or(1, |c| c.values.len());
-        if multi
-            .iter()
-            .any(|c| c.values.len() != channels || squeeze(&c.dims) != squeeze(&multi[0].dims))
+        let mut multi = consts.iter().filter(|c| c.values.len() > 1);
+        let first = multi.clone().next();
+        let channels = first.map_or(1, |c| c.values.len());
+        if let Some(first) = first
+            && multi.any(|c| c.values.len() != channels || !same_squeezed(&c.dims, &first.dims))
         {
             return None;
         }
@@ -381,7 +383,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         }
         Some(Expr {
             steps,
-            channel_shape: multi.first().map(|c| c.dims.clone()),
+            channel_shape: first.map(|c| c.dims.clone()),
             consts,
             channels,
         })
@@ -609,7 +611,9 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     }
 }
 
-/// Dims without their 1s, so `[1, C, 1, 1]` and `[C, 1, 1]` compare equal.
-fn squeeze(dims: &[usize]) -> Vec<usize> {
-    dims.iter().copied().filter(|&d| d != 1).collect()
+/// Whether two shapes are equal without their 1s, as `[1, C, 1, 1]` and `[C, 1, 1]` are.
+fn same_squeezed(a: &[usize], b: &[usize]) -> bool {
+    a.iter()
+        .filter(|&&d| d != 1)
+        .eq(b.iter().filter(|&&d| d != 1))
 }

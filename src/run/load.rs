@@ -93,7 +93,7 @@ fn load(mut proto: ModelProto, model_dir: Option<&Path>) -> Result<TractModel, R
         weights::restore(
             &onnx,
             &mut parsed.model,
-            &parsed.outlets_by_name,
+            &mut parsed.outlets_by_name,
             &lifted,
             dir,
         )

@@ -13,6 +13,9 @@
 //! # Workarounds for tract 0.23.9
 //! - Symbolic `value_info` against concrete inputs fails to type: fixed before analysis (above).
 //! - Node names are made unique before tract sees them (it refuses repeats at typing).
+//! - Parsing and typing are kept linear in the node count: initializers become constants after
+//!   parsing (module `weights`) and each node is typed on its own (module `typing`); tract's own paths
+//!   compare every node they add with every node before it.
 //! - Celu and Swish load with loaders that honour `alpha` (tract's ignore it); Pow keeps the
 //!   base's element type (tract's takes the exponent's when wider).
 //! - A model with ops tract lacks is refused at [`prepare`], naming each op type and node, the

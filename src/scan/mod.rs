@@ -99,7 +99,7 @@ struct GraphScan<'a, 'm> {
     /// Each node's element-wise step (None: not element-wise).
     ops: Vec<Option<Op>>,
     /// How many of each node's inputs carry data ([`expr::data_inputs`]).
-    data_inputs: Vec<usize>,
+    data_inputs: Vec<u32>,
     /// Constant values by tensor id, filled on first use (inner None: not a constant).
     consts: Vec<Option<Option<Rc<Const>>>>,
     covered: Vec<bool>,
@@ -128,7 +128,11 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             types,
             pos,
             ops: graph.nodes.iter().map(|n| expr::op_of(n, opset)).collect(),
-            data_inputs: graph.nodes.iter().map(expr::data_inputs).collect(),
+            data_inputs: graph
+                .nodes
+                .iter()
+                .map(|n| expr::data_inputs(n) as u32)
+                .collect(),
             consts: vec![None; graph.tensor_count()],
             covered: vec![false; graph.nodes.len()],
             cache,
@@ -159,7 +163,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     fn inputs(&self, n: usize) -> &'a [TensorId] {
         let graph: &'a GraphIndex<'m> = self.graph;
         let all = graph.node_inputs(n);
-        &all[..self.data_inputs[n].min(all.len())]
+        &all[..(self.data_inputs[n] as usize).min(all.len())]
     }
 
     /// Node `n`'s output, when it has exactly one.

@@ -48,7 +48,10 @@ pub(crate) fn lift(graph: &mut GraphProto) -> Lifted {
     let mut aliases: HashMap<String, String> = HashMap::new();
     let mut tensors = Vec::new();
     for t in std::mem::take(&mut graph.initializer) {
-        if !kept_names.contains(&t.name) && t.external_data.is_empty() {
+        // The name's field is its bytes plus a tag and a length (at most 11 bytes more): a
+        // larger tensor is never copied to be compared.
+        let small = t.encoded_len() <= SHARED_BYTES + t.name.len() + 11;
+        if small && !kept_names.contains(&t.name) && t.external_data.is_empty() {
             let mut unnamed = t.clone();
             unnamed.name.clear();
             if unnamed.encoded_len() <= SHARED_BYTES {

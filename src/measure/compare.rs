@@ -206,11 +206,24 @@ pub fn compare(
         .collect();
 
     let mut sites: Vec<SiteDrift> = pairs.iter().map(Pair::record).collect();
-    for (p, rec) in pairs.iter().zip(sites.iter_mut()) {
+    let mut bounds: Vec<BoundJob> = Vec::new();
+    for (i, (p, rec)) in pairs.iter().zip(sites.iter_mut()).enumerate() {
         measure_propagated(p, rec, opts.tolerance);
-        measure_range(p, rec);
+        bounds.extend(measure_range(p, rec, i));
     }
-    let isolated = measure_local(&a, &b, &pairs, &mut sites, opts.tolerance);
+    // The worst-case bounds need only the catalogue: they are computed on a thread of their
+    // own while the isolated sites run.
+    let (isolated, worst) = std::thread::scope(|scope| {
+        let worst = scope.spawn(|| bounds.iter().map(BoundJob::compute).collect::<Vec<_>>());
+        let isolated = measure_local(&a, &b, &pairs, &mut sites, opts.tolerance);
+        let worst = worst
+            .join()
+            .unwrap_or_else(|panic| std::panic::resume_unwind(panic));
+        (isolated, worst)
+    });
+    for (job, bound) in bounds.iter().zip(worst) {
+        job.record(&mut sites[job.site], bound);
+    }
     let outputs = measure_outputs(&a, &b, cap_a.main(), cap_b.main(), opts.tolerance);
     let latency = match opts.latency {
         Some(lat) => {
@@ -476,10 +489,12 @@ fn measure_propagated(p: &Pair, rec: &mut SiteDrift, tol: Tolerance) {
     }
 }
 
-fn measure_range(p: &Pair, rec: &mut SiteDrift) {
+/// Measures the range of the site's input on the samples; the worst-case bound over it is
+/// left to the returned job.
+fn measure_range<'s>(p: &Pair<'s, '_>, rec: &mut SiteDrift, site: usize) -> Option<BoundJob<'s>> {
     let values_a = p.reached_a();
     if values_a.is_empty() {
-        return;
+        return None;
     }
     let mut range = RangeCollector::default();
     for v in values_a {
@@ -488,39 +503,72 @@ fn measure_range(p: &Pair, rec: &mut SiteDrift) {
             Err(e) => {
                 rec.notes
                     .push(format!("input range not measured: {}", flat(&e)));
-                return;
+                return None;
             }
         }
     }
     rec.input_range = range.finish();
     match rec.input_range {
-        None => rec
-            .notes
-            .push("input range: no finite input value was seen".into()),
-        Some(r) => match worst_case(p, r.min, r.max) {
+        None => {
+            rec.notes
+                .push("input range: no finite input value was seen".into());
+            None
+        }
+        Some(r) => Some(BoundJob {
+            a: p.a,
+            b: p.b,
+            fit: p.fit,
+            lo: r.min,
+            hi: r.max,
+            site,
+            note_at: rec.notes.len(),
+        }),
+    }
+}
+
+/// The catalogue's worst-case |a - b| of one site over its measured input range.
+struct BoundJob<'s> {
+    a: &'s Site,
+    b: &'s Site,
+    /// The fit `b` computes, when it is a fitted form.
+    fit: Option<&'s Fitted>,
+    lo: f64,
+    hi: f64,
+    /// The site's index in the report.
+    site: usize,
+    /// Where in the site's notes a failure to bound goes (after the notes before the range).
+    note_at: usize,
+}
+
+impl BoundJob<'_> {
+    /// The worst case over [lo, hi], worst channel first (the fit's error, for a fitted form);
+    /// and where.
+    fn compute(&self) -> Result<(f64, f64), String> {
+        if let Some(fit) = self.fit {
+            let e = fit.error_over(self.lo, self.hi);
+            return Ok((e.value, e.at));
+        }
+        let (a, b) = (self.a, self.b);
+        let (pa, pb) = match (&a.params, &b.params) {
+            (Some(pa), Some(pb)) => (pa, pb),
+            _ => return Err("a parameter is only known at run time".into()),
+        };
+        let (e, _) =
+            substitute::max_abs_error_per_channel((a.kind, pa), (b.kind, pb), self.lo, self.hi)?;
+        Ok((e.value, e.at))
+    }
+
+    fn record(&self, rec: &mut SiteDrift, bound: Result<(f64, f64), String>) {
+        match bound {
             Ok((value, at)) => {
                 rec.bound_over_range = Some(value);
                 rec.bound_at = Some(at);
             }
-            Err(why) => rec.notes.push(format!("no worst-case bound: {why}")),
-        },
+            Err(why) => rec
+                .notes
+                .insert(self.note_at, format!("no worst-case bound: {why}")),
+        }
     }
-}
-
-/// The catalogue's worst-case |a - b| over [lo, hi], worst channel first (the fit's error, for a
-/// fitted form); and where.
-fn worst_case(p: &Pair, lo: f64, hi: f64) -> Result<(f64, f64), String> {
-    if let Some(fit) = p.fit {
-        let e = fit.error_over(lo, hi);
-        return Ok((e.value, e.at));
-    }
-    let (a, b) = (p.a, p.b);
-    let (pa, pb) = match (&a.params, &b.params) {
-        (Some(pa), Some(pb)) => (pa, pb),
-        _ => return Err("a parameter is only known at run time".into()),
-    };
-    let (e, _) = substitute::max_abs_error_per_channel((a.kind, pa), (b.kind, pb), lo, hi)?;
-    Ok((e.value, e.at))
 }
 
 /// An isolated site pair: both extracts and the declared input.

@@ -3,6 +3,7 @@
 
 pub mod attrs;
 pub mod builder;
+mod decode;
 pub mod external;
 pub mod index;
 pub mod inline;
@@ -13,6 +14,7 @@ pub mod tensor;
 mod unknown;
 pub mod unroll;
 pub mod walk;
+mod wire;
 
 /// Types generated from `proto/onnx.proto` by prost (see build.rs).
 #[allow(clippy::all, missing_docs)]

@@ -17,7 +17,7 @@ use prost::Message;
 
 use super::external;
 use super::proto::{ModelProto, StringStringEntryProto, TensorProto, tensor_proto::DataLocation};
-use super::{stream, unknown, walk};
+use super::{decode, stream, unknown, walk};
 use crate::files::temps::LiveTemp;
 use crate::files::{FileAccess, open::kind_of, open_regular};
 use crate::text::escape_path;
@@ -90,7 +90,7 @@ impl Model {
         if bytes.is_empty() {
             bail!("the file is empty, not an ONNX model");
         }
-        let proto = ModelProto::decode(bytes.clone()).map_err(|e| {
+        let proto = decode::decode_model(&bytes).map_err(|e| {
             // prost's message for its nesting limit (the protobuf default of 100 levels).
             if e.to_string().contains("recursion limit") {
                 anyhow::anyhow!(

@@ -335,7 +335,8 @@ impl<'m> ModelIndex<'m> {
         value_info: HashMap<&'m str, &'m ValueInfoProto>,
     ) -> Result<usize> {
         let shown = escape(&scope.path);
-        let mut names = DefaultStringInterner::new();
+        // A graph names about one tensor per node besides its inputs and initializers.
+        let mut names = DefaultStringInterner::with_capacity(nodes.len() + known.predefined.len());
         for &name in &known.predefined {
             names.get_or_intern(name);
         }
@@ -393,11 +394,14 @@ impl<'m> ModelIndex<'m> {
             }
         }
         w.output_starts.push(w.outputs.len() as u32);
+        let defined = |id: usize, producer: &[u32]| {
+            id < predefined || producer.get(id).is_some_and(|&p| p != NO_NODE)
+        };
         let is_defined = |names: &DefaultStringInterner, producer: &[u32], name: &str| {
-            names.get(name).is_some_and(|s| {
-                let id = s.to_usize();
-                id < predefined || producer.get(id).is_some_and(|&p| p != NO_NODE)
-            }) || known.outer.contains(name)
+            names
+                .get(name)
+                .is_some_and(|s| defined(s.to_usize(), producer))
+                || known.outer.contains(name)
         };
         // Names each node's subgraphs read from this graph or further out.
         let mut free: Vec<(usize, Vec<TensorId>)> = Vec::new();
@@ -409,24 +413,34 @@ impl<'m> ModelIndex<'m> {
                     free_names(g, &mut outer_reads);
                 }
             }
-            let reads = n
-                .input
-                .iter()
-                .map(String::as_str)
-                .filter(|s| !s.is_empty())
-                .chain(outer_reads.iter().copied());
-            for name in reads {
-                if !is_defined(&names, &w.producer, name) {
-                    bail!(
-                        "graph {shown}: node '{}' ({}) reads undefined tensor '{}'",
-                        escape(&node_label(n, i)),
-                        escape(n.op_type()),
-                        escape(name)
-                    );
-                }
+            let undefined = |name: &str| {
+                anyhow::anyhow!(
+                    "graph {shown}: node '{}' ({}) reads undefined tensor '{}'",
+                    escape(&node_label(n, i)),
+                    escape(n.op_type()),
+                    escape(name)
+                )
+            };
+            for name in &n.input {
+                let id = if name.is_empty() {
+                    ABSENT
+                } else {
+                    // A name of this graph has its id already; one of an enclosing graph is
+                    // numbered on its first read.
+                    match names.get(name.as_str()) {
+                        Some(s) if defined(s.to_usize(), &w.producer) => s.to_usize() as TensorId,
+                        _ if known.outer.contains(name.as_str()) => intern(&mut names, name),
+                        _ => return Err(undefined(name)),
+                    }
+                };
+                w.inputs.push(id);
             }
-            w.inputs
-                .extend(n.input.iter().map(|s| intern(&mut names, s)));
+            if let Some(name) = outer_reads
+                .iter()
+                .find(|name| !is_defined(&names, &w.producer, name))
+            {
+                return Err(undefined(name));
+            }
             if !outer_reads.is_empty() {
                 let ids = outer_reads.iter().map(|s| intern(&mut names, s)).collect();
                 free.push((i, ids));

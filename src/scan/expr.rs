@@ -81,11 +81,11 @@ pub struct Const {
     pub dims: Vec<usize>,
 }
 
-/// The compiled chain (held inline: a scan compiles a few chains per node, most of them found
-/// in the identification cache by their key).
-#[derive(Debug, Clone)]
+/// The compiled chain. A scan compiles a few chains per node into one reused `Expr` (most are
+/// then found in the identification cache by their key), so its steps keep their allocation.
+#[derive(Debug, Clone, Default)]
 pub struct Expr {
-    pub steps: SmallVec<[Step; MAX_CHAIN]>,
+    pub steps: Vec<Step>,
     pub consts: SmallVec<[std::rc::Rc<Const>; 8]>,
     /// 1 for a scalar function, else the element count shared by every multi-element constant.
     pub channels: usize,

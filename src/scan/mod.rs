@@ -89,6 +89,22 @@ impl Identified {
     }
 }
 
+/// The single-input chains ending at one node: the largest chain's nodes in topological
+/// order at `nodes[first..]`, and each chain's input and first node, smallest chain first.
+struct Chains {
+    nodes: [usize; MAX_CHAIN],
+    first: usize,
+    ends: SmallVec<[(u32, usize); 8]>,
+}
+
+impl Chains {
+    /// Chain `i`: its input and its nodes in topological order.
+    fn get(&self, i: usize) -> (u32, &[usize]) {
+        let (input, first) = self.ends[i];
+        (input, &self.nodes[first..])
+    }
+}
+
 struct GraphScan<'a, 'm> {
     index: &'a ModelIndex<'m>,
     g: usize,
@@ -104,7 +120,9 @@ struct GraphScan<'a, 'm> {
     consts: Vec<Option<Option<Rc<Const>>>>,
     covered: Vec<bool>,
     cache: &'a mut Cache,
-    /// The key of the chain being identified (one buffer for all).
+    /// The chain being identified, compiled (one buffer for all).
+    expr: Expr,
+    /// Its key (one buffer for all).
     key: Vec<u64>,
 }
 
@@ -136,6 +154,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             consts: vec![None; graph.tensor_count()],
             covered: vec![false; graph.nodes.len()],
             cache,
+            expr: Expr::default(),
             key: Vec::new(),
         }
     }
@@ -217,29 +236,29 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         let fused_op = catalog::is_fused_op(node.domain(), node.op_type());
         if self.ops[n].is_some() {
             let chains = self.chains(n);
-            for i in (0..chains.len()).rev() {
-                let (input, nodes) = &chains[i];
+            for i in (0..chains.ends.len()).rev() {
+                let (input, nodes) = chains.get(i);
                 if nodes.len() == 1 && fused_op {
                     break;
                 }
-                let Some(found) = self.identify_chain(*input, nodes) else {
+                let Some(found) = self.identify_chain(input, nodes) else {
                     continue;
                 };
                 let smallest = (0..i).find_map(|j| {
-                    let (input, nodes) = &chains[j];
-                    self.identify_chain(*input, nodes)
+                    let (input, nodes) = chains.get(j);
+                    self.identify_chain(input, nodes)
                         .filter(|f| f.same_as(&found))
                         .map(|f| (j, f))
                 });
                 let (j, found) = smallest.unwrap_or((i, found));
-                let (input, nodes) = &chains[j];
+                let (input, nodes) = chains.get(j);
                 if nodes.len() == 1 && fused_op {
                     return self.fused(n);
                 }
-                if self.ends_before_last(*input, nodes, &found) {
+                if self.ends_before_last(input, nodes, &found) {
                     break;
                 }
-                let input = self.graph.tensor_name(*input);
+                let input = self.graph.tensor_name(input);
                 return Some(self.site(
                     nodes,
                     input,
@@ -274,17 +293,26 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             .is_some_and(|f| f.same_as(found))
     }
 
-    /// Single-input chains ending at node `n`, smallest first: (input tensor, nodes in
-    /// topological order).
-    fn chains(&mut self, n: usize) -> Vec<(u32, Vec<usize>)> {
-        let mut out = Vec::new();
-        // The chain's nodes, kept in topological order.
-        let mut set: Vec<usize> = vec![n];
+    /// Single-input chains ending at node `n`, smallest first.
+    ///
+    /// The frontier tensor expanded is always the one produced last, so the nodes are taken in
+    /// decreasing topological position: each chain's nodes are the last ones of the next
+    /// larger chain's.
+    fn chains(&mut self, n: usize) -> Chains {
+        let mut chains = Chains {
+            nodes: [0; MAX_CHAIN],
+            first: MAX_CHAIN - 1,
+            ends: SmallVec::new(),
+        };
+        chains.nodes[MAX_CHAIN - 1] = n;
         let mut frontier: Vec<u32> = Vec::new();
         self.add_dynamic_inputs(n, &mut frontier);
-        while !frontier.is_empty() && set.len() <= MAX_CHAIN {
+        while !frontier.is_empty() {
             if frontier.len() == 1 {
-                out.push((frontier[0], set.clone()));
+                chains.ends.push((frontier[0], chains.first));
+            }
+            if chains.first == 0 {
+                break;
             }
             // Expand the frontier tensor produced last.
             let (k, p) = match frontier
@@ -299,11 +327,13 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             if self.covered[p] || self.output(p).is_none() || self.ops[p].is_none() {
                 break;
             }
+            debug_assert!(self.pos[p] < self.pos[chains.nodes[chains.first]]);
             frontier.swap_remove(k);
-            set.insert(set.partition_point(|&i| self.pos[i] < self.pos[p]), p);
+            chains.first -= 1;
+            chains.nodes[chains.first] = p;
             self.add_dynamic_inputs(p, &mut frontier);
         }
-        out
+        chains
     }
 
     /// Compiles and identifies a chain of float computations; its kind and parameters when the
@@ -315,7 +345,10 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         if not_float(input) || not_float(output) {
             return None;
         }
-        let expr = self.compile(input, nodes)?;
+        if !self.compile(input, nodes) {
+            return None;
+        }
+        let expr = &self.expr;
         let nonlinear = expr.steps.iter().any(|s| {
             !expr::is_linear(&s.op)
                 || (matches!(s.op, Op::Mul | Op::Div | Op::Pow)
@@ -346,9 +379,20 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         })
     }
 
-    fn compile(&mut self, input: u32, nodes: &[usize]) -> Option<Expr> {
-        let mut steps = SmallVec::new();
-        let mut consts: SmallVec<[Rc<Const>; 8]> = SmallVec::new();
+    /// Compiles the chain into [`Self::expr`]; false when a node is not element-wise, an
+    /// operand is neither computed in the chain nor a constant, or the per-channel constants
+    /// disagree.
+    fn compile(&mut self, input: u32, nodes: &[usize]) -> bool {
+        let mut expr = std::mem::take(&mut self.expr);
+        let compiled = self.compile_into(input, nodes, &mut expr);
+        self.expr = expr;
+        compiled.is_some()
+    }
+
+    fn compile_into(&mut self, input: u32, nodes: &[usize], expr: &mut Expr) -> Option<()> {
+        expr.steps.clear();
+        expr.consts.clear();
+        expr.channel_shape = None;
         // Chains are short: linear lookups beat hashing here.
         let mut const_ids: SmallVec<[u32; 8]> = SmallVec::new();
         let mut step_outputs: SmallVec<[u32; MAX_CHAIN]> = SmallVec::new();
@@ -365,15 +409,16 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 } else if let Some(c) = const_ids.iter().position(|&t| t == id) {
                     Operand::Const(c)
                 } else {
-                    consts.push(self.constant_id(id)?);
+                    expr.consts.push(self.constant_id(id)?);
                     const_ids.push(id);
-                    Operand::Const(consts.len() - 1)
+                    Operand::Const(expr.consts.len() - 1)
                 };
                 args.push(a);
             }
             step_outputs.push(self.output(n)?);
-            steps.push(Step { op, args });
+            expr.steps.push(Step { op, args });
         }
+        let consts = &expr.consts;
         let mut multi = consts.iter().filter(|c| c.values.len() > 1);
         let first = multi.clone().next();
         let channels = first.map_or(1, |c| c.values.len());
@@ -385,12 +430,9 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         if consts.iter().any(|c| c.values.is_empty()) {
             return None;
         }
-        Some(Expr {
-            steps,
-            channel_shape: first.map(|c| c.dims.clone()),
-            consts,
-            channels,
-        })
+        expr.channel_shape = first.map(|c| c.dims.clone());
+        expr.channels = channels;
+        Some(())
     }
 
     fn fused(&mut self, n: usize) -> Option<Site> {

@@ -10,6 +10,8 @@
 
 use std::sync::OnceLock;
 
+use rayon::prelude::*;
+
 use super::all;
 use super::kind::Kind;
 use super::params::Params;
@@ -98,13 +100,11 @@ pub fn identify(f: &dyn Fn(f64) -> f64) -> Option<(&'static Kind, Vec<f64>)> {
 /// as swish are a per-channel swish, a per-channel leaky_relu slope is a prelu. A kind whose
 /// parameters vary although the catalogue gives them as scalars is kept when nothing else fits.
 pub fn identify_channels(
-    f: &dyn Fn(f64, usize) -> f64,
+    f: &(dyn Fn(f64, usize) -> f64 + Sync),
     channels: usize,
     shape: Option<Vec<usize>>,
 ) -> Option<(&'static Kind, Params)> {
-    let found: Vec<(&'static Kind, Vec<f64>)> = (0..channels)
-        .map(|c| identify(&|x| f(x, c)))
-        .collect::<Option<_>>()?;
+    let found: Vec<(&'static Kind, Vec<f64>)> = each_channel(channels, |c| identify(&|x| f(x, c)))?;
     let first = found[0].0;
     let same_kind = found.iter().all(|(k, _)| k.id == first.id);
     if same_kind {
@@ -130,9 +130,7 @@ pub fn identify_channels(
             continue;
         }
         tried.push(kind.id);
-        let per: Option<Vec<Vec<f64>>> = (0..channels)
-            .map(|c| identify_as(kind, &|x| f(x, c)))
-            .collect();
+        let per = each_channel(channels, |c| identify_as(kind, &|x| f(x, c)));
         if let Some(per) = per {
             return Some((kind, Params::from_channels(&per, shape)));
         }
@@ -141,6 +139,19 @@ pub fn identify_channels(
         let per: Vec<Vec<f64>> = found.into_iter().map(|(_, p)| p).collect();
         (first, Params::from_channels(&per, shape))
     })
+}
+
+/// `find` for every channel, in order, on every core when there are several; `None` when some
+/// channel gives none.
+fn each_channel<T: Send>(
+    channels: usize,
+    find: impl Fn(usize) -> Option<T> + Sync,
+) -> Option<Vec<T>> {
+    if channels > 1 {
+        (0..channels).into_par_iter().map(&find).collect()
+    } else {
+        (0..channels).map(find).collect()
+    }
 }
 
 #[cfg(test)]

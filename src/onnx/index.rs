@@ -163,6 +163,20 @@ impl<'m> ModelIndex<'m> {
         self.constant_depth(g, name, 0)
     }
 
+    /// [`ModelIndex::constant`] of tensor `id` of graph `g`: a tensor computed by an op that
+    /// never gives a constant is ruled out without looking its name up.
+    pub fn constant_by_id(&self, g: usize, id: TensorId) -> Option<TensorValue> {
+        let graph = &self.graphs[g];
+        if id == ABSENT
+            || graph
+                .producer_of(id)
+                .is_some_and(|p| !may_be_constant(&graph.nodes[p]))
+        {
+            return None;
+        }
+        self.constant(g, graph.tensor_name(id))
+    }
+
     fn constant_depth(&self, g: usize, name: &str, depth: usize) -> Option<TensorValue> {
         if depth > 16 || name.is_empty() {
             return None;
@@ -851,6 +865,24 @@ fn first_repeat<'a>(names: impl Iterator<Item = &'a str>) -> Option<&'a str> {
 }
 
 /// The value of a Constant node (value, value_float(s), value_int(s)).
+/// Whether [`ModelIndex::constant`] may find the output of `node` constant: a Constant node, or
+/// an op it follows to its input (Identity, Cast, CastLike, Reshape, Unsqueeze, Squeeze,
+/// Flatten).
+fn may_be_constant(node: &NodeProto) -> bool {
+    matches!(node.domain(), "" | "ai.onnx")
+        && matches!(
+            node.op_type(),
+            "Constant"
+                | "Identity"
+                | "Cast"
+                | "CastLike"
+                | "Reshape"
+                | "Unsqueeze"
+                | "Squeeze"
+                | "Flatten"
+        )
+}
+
 fn constant_node_value(node: &NodeProto, model: &Model) -> Option<TensorValue> {
     use super::proto::tensor_proto::DataType;
     let a: &AttributeProto = node.attribute.first()?;

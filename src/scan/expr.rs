@@ -2,6 +2,10 @@
 //! f64 with the model's own (usually float32-rounded) constants. Constants of more than one element
 //! make the function per-channel: channel `c` reads element `c` of each of them.
 
+use std::ops::Deref;
+use std::rc::Rc;
+use std::sync::Arc;
+
 use smallvec::SmallVec;
 
 use crate::catalog::{self, FusedNode, Kind};
@@ -83,17 +87,46 @@ pub struct Const {
 
 /// The compiled chain. A scan compiles a few chains per node into one reused `Expr` (most are
 /// then found in the identification cache by their key), so its steps keep their allocation.
-#[derive(Debug, Clone, Default)]
-pub struct Expr {
+/// Its constants are shared with the scan's table of constants (`C`: [`Rc`]), or with the
+/// threads identifying its channels ([`Expr::shared`]).
+#[derive(Debug, Clone)]
+pub struct Expr<C = Rc<Const>> {
     pub steps: Vec<Step>,
-    pub consts: SmallVec<[std::rc::Rc<Const>; 8]>,
+    pub consts: SmallVec<[C; 8]>,
     /// 1 for a scalar function, else the element count shared by every multi-element constant.
     pub channels: usize,
     /// Shape of the multi-element constants, when there are any.
     pub channel_shape: Option<Vec<usize>>,
 }
 
+impl<C> Default for Expr<C> {
+    fn default() -> Self {
+        Expr {
+            steps: Vec::new(),
+            consts: SmallVec::new(),
+            channels: 0,
+            channel_shape: None,
+        }
+    }
+}
+
 impl Expr {
+    /// A copy whose constants can be read from several threads.
+    pub fn shared(&self) -> Expr<Arc<Const>> {
+        Expr {
+            steps: self.steps.clone(),
+            consts: self
+                .consts
+                .iter()
+                .map(|c| Arc::new(Const::clone(c)))
+                .collect(),
+            channels: self.channels,
+            channel_shape: self.channel_shape.clone(),
+        }
+    }
+}
+
+impl<C: Deref<Target = Const>> Expr<C> {
     /// Evaluates the chain at `x` for channel `c`.
     pub fn eval(&self, x: f64, c: usize) -> f64 {
         let mut vals = [0.0f64; MAX_CHAIN];

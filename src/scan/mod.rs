@@ -201,15 +201,12 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         if let Some(c) = &self.consts[id as usize] {
             return c.clone();
         }
-        let v = self
-            .index
-            .constant(self.g, self.graph.tensor_name(id))
-            .map(|t| {
-                Rc::new(Const {
-                    values: t.data,
-                    dims: t.dims,
-                })
-            });
+        let v = self.index.constant_by_id(self.g, id).map(|t| {
+            Rc::new(Const {
+                values: t.data,
+                dims: t.dims,
+            })
+        });
         self.consts[id as usize] = Some(v.clone());
         v
     }
@@ -366,8 +363,10 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         let found = match self.cache.get(self.key.as_slice()) {
             Some(r) => r.clone(),
             None => {
-                let r = catalog::identify_channels(&|x, c| expr.eval(x, c), expr.channels, None)
-                    .map(|(kind, params)| Identified { kind, params });
+                let shared = expr.shared();
+                let r =
+                    catalog::identify_channels(&|x, c| shared.eval(x, c), shared.channels, None)
+                        .map(|(kind, params)| Identified { kind, params });
                 self.cache.insert(self.key.clone(), r.clone());
                 r
             }

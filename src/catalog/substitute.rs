@@ -539,11 +539,28 @@ fn samples(lo: f64, hi: f64, breaks: &[f64], err: &dyn Fn(f64) -> f64) -> Vec<f6
     }
     xs.extend(breaks.iter().filter(|x| (lo..=hi).contains(*x)));
     xs.retain(|x| (lo..=hi).contains(x));
-    // A stable sort: the samples are a few runs, each already in order (or reversed), which
-    // it finds and merges instead of partitioning.
-    xs.sort_by(f64::total_cmp);
-    xs.dedup();
+    sort_dedup(&mut xs);
     xs
+}
+
+/// Sorts `xs` by [`f64::total_cmp`] and drops repeats (`==`), as `sort_by(f64::total_cmp)` then
+/// `dedup()` do, but on integer keys whose order is `total_cmp`'s: several times faster than
+/// comparing floats, with the same result.
+fn sort_dedup(xs: &mut Vec<f64>) {
+    const SIGN: u64 = 1 << 63;
+    // Negative floats order by their flipped bits, positive ones after them.
+    let key = |x: f64| {
+        let b = x.to_bits();
+        if b & SIGN != 0 { !b } else { b | SIGN }
+    };
+    let float = |k: u64| f64::from_bits(if k & SIGN != 0 { k & !SIGN } else { !k });
+    let mut keys: Vec<u64> = xs.iter().map(|&x| key(x)).collect();
+    keys.sort();
+    keys.dedup();
+    xs.clear();
+    xs.extend(keys.into_iter().map(float));
+    // -0.0 == 0.0: the sorted floats still hold both where both were sampled.
+    xs.dedup();
 }
 
 /// The tail grid (16 points per octave, from `CORE` outwards) within `(from, to]`.
@@ -796,6 +813,24 @@ mod tests {
             }
         }
         assert!(checked >= 40, "{checked} bounds checked");
+    }
+
+    #[test]
+    fn integer_keys_sort_as_total_cmp_does() {
+        // Rust's own total order of floats (f64::total_cmp) is the reference.
+        let mut xs = vec![
+            3.5, -0.0, 0.0, -1e300, 1e-310, -1e-310, 2.0, 2.0, -3.5, 0.0, 64.0, -64.0, 1e300,
+        ];
+        xs.extend((0..4096).map(|i| -5.0 + 10.0 * (i as f64 / 4096.0)));
+        xs.extend((0..4096).rev().map(|i| (i as f64).sqrt() - 20.0));
+        let mut expected = xs.clone();
+        expected.sort_by(f64::total_cmp);
+        expected.dedup();
+        sort_dedup(&mut xs);
+        assert_eq!(
+            xs.iter().map(|x| x.to_bits()).collect::<Vec<_>>(),
+            expected.iter().map(|x| x.to_bits()).collect::<Vec<_>>()
+        );
     }
 
     #[test]

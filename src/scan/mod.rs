@@ -54,7 +54,7 @@ pub fn scan(index: &ModelIndex) -> ScanReport {
     let mut types: Vec<Types> = Vec::with_capacity(index.graphs.len());
     for (g, graph) in index.graphs.iter().enumerate() {
         let t = Types::infer(graph, graph.parent.map(|p| &types[p]));
-        sites.extend(GraphScan::new(index, g, &t, &mut cache).run());
+        GraphScan::new(index, g, &t, &mut cache).run(&mut sites);
         types.push(t);
     }
     for (i, s) in sites.iter_mut().enumerate() {
@@ -159,10 +159,11 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         }
     }
 
-    fn run(mut self) -> Vec<Site> {
-        let mut sites = Vec::new();
-        let order: Vec<usize> = self.graph.order().to_vec();
-        for &n in order.iter().rev() {
+    /// Appends the graph's sites to `sites`, in node order.
+    fn run(mut self, sites: &mut Vec<Site>) {
+        let start = sites.len();
+        let graph: &'a GraphIndex<'m> = self.graph;
+        for &n in graph.order().iter().rev() {
             if self.covered[n] {
                 continue;
             }
@@ -173,8 +174,13 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 sites.push(site);
             }
         }
-        sites.sort_by_key(|s| self.pos[*s.node_indices.last().expect("non-empty site")]);
-        sites
+        // Found latest first, each ending at the node it was found at: reversed, they are in
+        // node order, with no sort buffer the size of the sites.
+        let found = &mut sites[start..];
+        found.reverse();
+        debug_assert!(
+            found.is_sorted_by_key(|s| self.pos[s.node_indices[s.node_indices.len() - 1]])
+        );
     }
 
     /// Node `n`'s data inputs (CastLike's type-giving input excluded), [`ABSENT`] for a missing

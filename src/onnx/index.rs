@@ -170,7 +170,7 @@ impl<'m> ModelIndex<'m> {
         if id == ABSENT
             || graph
                 .producer_of(id)
-                .is_some_and(|p| !may_be_constant(&graph.nodes[p]))
+                .is_some_and(|p| !is_constant_op(&graph.nodes[p]))
         {
             return None;
         }
@@ -865,10 +865,10 @@ fn first_repeat<'a>(names: impl Iterator<Item = &'a str>) -> Option<&'a str> {
 }
 
 /// The value of a Constant node (value, value_float(s), value_int(s)).
-/// Whether [`ModelIndex::constant`] may find the output of `node` constant: a Constant node, or
-/// an op it follows to its input (Identity, Cast, CastLike, Reshape, Unsqueeze, Squeeze,
-/// Flatten).
-fn may_be_constant(node: &NodeProto) -> bool {
+/// Whether `node` only produces or reshapes constants: a Constant node, or an op
+/// [`ModelIndex::constant`] follows to its input (Identity, Cast, CastLike, Reshape, Unsqueeze,
+/// Squeeze, Flatten).
+pub fn is_constant_op(node: &NodeProto) -> bool {
     matches!(node.domain(), "" | "ai.onnx")
         && matches!(
             node.op_type(),

@@ -18,6 +18,7 @@ use anyhow::{Context, Result, bail};
 
 use crate::catalog::Form;
 use crate::onnx::builder;
+use crate::onnx::index::is_constant_op;
 use crate::onnx::proto::{NodeProto, TensorProto};
 use crate::onnx::{GraphKind, Model, ModelIndex};
 use crate::plan::{Action, Plan};
@@ -279,22 +280,6 @@ fn apply_patches(g: &mut GraphMut, patches: Vec<Patch>) {
         .collect();
     g.value_info()
         .retain(|v| !dropped_outputs.contains(v.name()) || produced.contains(v.name()));
-}
-
-/// Ops that only produce or reshape constants.
-fn is_constant_op(n: &NodeProto) -> bool {
-    matches!(n.domain(), "" | "ai.onnx")
-        && matches!(
-            n.op_type(),
-            "Constant"
-                | "Identity"
-                | "Cast"
-                | "CastLike"
-                | "Reshape"
-                | "Unsqueeze"
-                | "Squeeze"
-                | "Flatten"
-        )
 }
 
 /// Refuses a plan whose sites overlap (each node may belong to one site).

@@ -139,51 +139,21 @@ fn piece_nodes(bytes: &Bytes, span: Range<usize>) -> Result<Vec<NodeProto>, Deco
     let mut head = Vec::with_capacity(11);
     put_varint(&mut head, (u64::from(MODEL_GRAPH) << 3) | WIRE_LEN);
     put_varint(&mut head, span.len() as u64);
-    let piece = PieceModel::decode(Bytes::from(head).chain(bytes.slice(span)))?;
-    Ok(piece.graph.nodes)
+    Ok(Piece::decode(Bytes::from(head).chain(bytes.slice(span)))?.nodes)
 }
 
-/// A model of one graph of nodes, as `ModelProto` decodes it (the same nesting depth), but
-/// with each node's repeated fields allocated at their size: decoding grows them four at a
-/// time, which on a graph of single-output nodes is most of what its names take.
+/// The nodes of a piece, with each node's repeated fields allocated at their size: prost
+/// grows them four at a time, which on a graph of single-output nodes is most of what its
+/// names take. The piece's graph field nests the node fields one level down, as in
+/// `ModelProto`, so they are decoded at the same depth (the same recursion limit); the bytes
+/// hold nothing else.
 #[derive(Debug, Default)]
-struct PieceModel {
-    graph: PieceGraph,
-}
-
-#[derive(Debug, Default)]
-struct PieceGraph {
+struct Piece {
     nodes: Vec<NodeProto>,
 }
 
-impl Message for PieceModel {
-    fn encode_raw(&self, buf: &mut impl BufMut) {
-        encoding::message::encode(MODEL_GRAPH, &self.graph, buf);
-    }
-
-    fn merge_field(
-        &mut self,
-        tag: u32,
-        wire_type: WireType,
-        buf: &mut impl Buf,
-        ctx: DecodeContext,
-    ) -> Result<(), DecodeError> {
-        match tag {
-            MODEL_GRAPH => encoding::message::merge(wire_type, &mut self.graph, buf, ctx),
-            _ => encoding::skip_field(wire_type, tag, buf, ctx),
-        }
-    }
-
-    fn encoded_len(&self) -> usize {
-        encoding::message::encoded_len(MODEL_GRAPH, &self.graph)
-    }
-
-    fn clear(&mut self) {
-        self.graph.clear();
-    }
-}
-
-impl Message for PieceGraph {
+impl Message for Piece {
+    /// Writes the graph level: the node fields.
     fn encode_raw(&self, buf: &mut impl BufMut) {
         encoding::message::encode_repeated(GRAPH_NODE, &self.nodes, buf);
     }
@@ -195,13 +165,16 @@ impl Message for PieceGraph {
         buf: &mut impl Buf,
         ctx: DecodeContext,
     ) -> Result<(), DecodeError> {
-        if tag != GRAPH_NODE {
-            return encoding::skip_field(wire_type, tag, buf, ctx);
+        match tag {
+            MODEL_GRAPH => encoding::message::merge(wire_type, self, buf, ctx),
+            GRAPH_NODE => {
+                let mut node = presized_node(buf.chunk());
+                encoding::message::merge(wire_type, &mut node, buf, ctx)?;
+                self.nodes.push(node);
+                Ok(())
+            }
+            _ => encoding::skip_field(wire_type, tag, buf, ctx),
         }
-        let mut node = presized_node(buf.chunk());
-        encoding::message::merge(wire_type, &mut node, buf, ctx)?;
-        self.nodes.push(node);
-        Ok(())
     }
 
     fn encoded_len(&self) -> usize {

@@ -864,7 +864,6 @@ fn first_repeat<'a>(names: impl Iterator<Item = &'a str>) -> Option<&'a str> {
     names.into_iter().find(|n| !seen.insert(*n))
 }
 
-/// The value of a Constant node (value, value_float(s), value_int(s)).
 /// Whether `node` only produces or reshapes constants: a Constant node, or an op
 /// [`ModelIndex::constant`] follows to its input (Identity, Cast, CastLike, Reshape, Unsqueeze,
 /// Squeeze, Flatten).
@@ -883,6 +882,7 @@ pub fn is_constant_op(node: &NodeProto) -> bool {
         )
 }
 
+/// The value of a Constant node (value, value_float(s), value_int(s)).
 fn constant_node_value(node: &NodeProto, model: &Model) -> Option<TensorValue> {
     use super::proto::tensor_proto::DataType;
     let a: &AttributeProto = node.attribute.first()?;

@@ -85,8 +85,8 @@ pub struct Const {
     pub dims: Vec<usize>,
 }
 
-/// The compiled chain. A scan compiles a few chains per node into one reused `Expr` (most are
-/// then found in the identification cache by their key), so its steps keep their allocation.
+/// The compiled chain. A scan compiles only the chains whose key it has not met, into one reused
+/// `Expr`, so its steps keep their allocation.
 /// Its constants are shared with the scan's table of constants (`C`: [`Rc`]), or with the
 /// threads identifying its channels ([`Expr::shared`]).
 #[derive(Debug, Clone)]
@@ -95,8 +95,6 @@ pub struct Expr<C = Rc<Const>> {
     pub consts: SmallVec<[C; 8]>,
     /// 1 for a scalar function, else the element count shared by every multi-element constant.
     pub channels: usize,
-    /// Shape of the multi-element constants, when there are any.
-    pub channel_shape: Option<Vec<usize>>,
 }
 
 impl<C> Default for Expr<C> {
@@ -105,7 +103,6 @@ impl<C> Default for Expr<C> {
             steps: Vec::new(),
             consts: SmallVec::new(),
             channels: 0,
-            channel_shape: None,
         }
     }
 }
@@ -121,7 +118,6 @@ impl Expr {
                 .map(|c| Arc::new(Const::clone(c)))
                 .collect(),
             channels: self.channels,
-            channel_shape: self.channel_shape.clone(),
         }
     }
 }
@@ -210,31 +206,76 @@ impl<C: Deref<Target = Const>> Expr<C> {
         self.steps.last().map_or(x, |_| vals[self.steps.len() - 1])
     }
 
-    /// Writes into `k` a key equal for chains that compute the same function (same ops, wiring
-    /// and constants), so identification runs once per distinct spelling. Every part is
-    /// length-prefixed, so different chains never share a key.
+    /// Writes into `k` this chain's key (see [`write_step_key`]). The scanner writes the same key
+    /// while walking a chain's operands, and checks it against this one for every chain it
+    /// compiles.
     pub fn write_key(&self, k: &mut Vec<u64>) {
         k.clear();
         for s in &self.steps {
-            s.op.encode(k);
-            k.push(s.args.len() as u64);
-            k.extend(s.args.iter().map(|a| match *a {
-                Operand::X => 1 << 32,
-                Operand::Step(j) => (2 << 32) | j as u64,
-                Operand::Const(j) => (3 << 32) | j as u64,
-                Operand::None => 4 << 32,
-            }));
+            write_step_key(k, &s.op, &s.args);
         }
         for c in &self.consts {
-            k.push(c.values.len() as u64);
-            k.extend(c.values.iter().map(|v| v.to_bits()));
+            write_const_key(k, &c.values);
         }
     }
 }
 
+/// Appends a step to a chain key: a key is equal for chains that compute the same function
+/// (same ops, wiring and constants), so identification runs once per distinct spelling. It is
+/// every step in order, then every constant's values ([`write_const_key`]). A step is its op
+/// and operand count in one word, the op's payload, then its operands two to a word; every part
+/// is length-prefixed, so different chains never share a key.
+pub fn write_step_key(k: &mut Vec<u64>, op: &Op, args: &[Operand]) {
+    op.encode(args.len(), k);
+    // An index fits in 30 bits: a model (under 2 GiB) cannot name 2^30 tensors.
+    let code = |a: &Operand| match *a {
+        Operand::None => 0,
+        Operand::X => 1 << 30,
+        Operand::Step(j) => (2 << 30) | j as u64,
+        Operand::Const(j) => (3 << 30) | j as u64,
+    };
+    let mut args = args.iter();
+    while let Some(a) = args.next() {
+        k.push(code(a) << 32 | args.next().map_or(0, code));
+    }
+}
+
+/// Appends a constant's values to a chain key, after all its steps.
+pub fn write_const_key(k: &mut Vec<u64>, values: &[f64]) {
+    k.push(values.len() as u64);
+    k.extend(values.iter().map(|v| v.to_bits()));
+}
+
+/// The channel count of a chain's constants and the shape of its multi-element ones (`None`
+/// when all are scalars): `None` when one is empty or the multi-element ones disagree in count
+/// or in shape (1s aside).
+pub fn channels_of<C: Deref<Target = Const>>(consts: &[C]) -> Option<(usize, Option<&[usize]>)> {
+    if consts.iter().any(|c| c.values.is_empty()) {
+        return None;
+    }
+    let mut multi = consts.iter().filter(|c| c.values.len() > 1);
+    let Some(first) = multi.next() else {
+        return Some((1, None));
+    };
+    let channels = first.values.len();
+    if multi.any(|c| c.values.len() != channels || !same_squeezed(&c.dims, &first.dims)) {
+        return None;
+    }
+    Some((channels, Some(&first.dims)))
+}
+
+/// Whether two shapes are equal without their 1s, as `[1, C, 1, 1]` and `[C, 1, 1]` are.
+fn same_squeezed(a: &[usize], b: &[usize]) -> bool {
+    a.iter()
+        .filter(|&&d| d != 1)
+        .eq(b.iter().filter(|&&d| d != 1))
+}
+
 impl Op {
-    /// Appends a code for the op and its payload to a chain key.
-    fn encode(&self, k: &mut Vec<u64>) {
+    /// Appends to a chain key a word for the op and its operand count (`args`), then the op's
+    /// payload.
+    fn encode(&self, args: usize, k: &mut Vec<u64>) {
+        let word = |tag: u64| tag | (args as u64) << 8;
         let tag = match self {
             Op::Add => 0,
             Op::Sub => 1,
@@ -267,17 +308,17 @@ impl Op {
             Op::Xor => 30,
             Op::Not => 31,
             Op::ClipAttr(lo, hi) => {
-                k.extend([25, lo.to_bits(), hi.to_bits()]);
+                k.extend([word(25), lo.to_bits(), hi.to_bits()]);
                 return;
             }
             Op::Kind(kind, p) => {
                 let at = catalog::position(kind);
-                k.extend([26, at as u64, p.len() as u64]);
+                k.extend([word(26), at as u64, p.len() as u64]);
                 k.extend(p.iter().map(|v| v.to_bits()));
                 return;
             }
         };
-        k.push(tag);
+        k.push(word(tag));
     }
 }
 
@@ -342,13 +383,19 @@ pub fn op_of(node: &NodeProto, opset: i64) -> Option<Op> {
     })
 }
 
-/// True for ops whose result is linear in their one dynamic operand; a chain made only of these
-/// is never an activation.
-pub fn is_linear(op: &Op) -> bool {
-    matches!(
+/// True unless the step's result is linear in its one dynamic operand; a chain without such a
+/// step is never an activation.
+pub fn is_nonlinear_step(op: &Op, args: &[Operand]) -> bool {
+    let linear = matches!(
         op,
         Op::Add | Op::Sub | Op::Mul | Op::Div | Op::Neg | Op::Pass | Op::Sum
-    )
+    );
+    let dynamic = || {
+        args.iter()
+            .filter(|a| matches!(a, Operand::X | Operand::Step(_)))
+            .count()
+    };
+    !linear || (matches!(op, Op::Mul | Op::Div | Op::Pow) && dynamic() > 1)
 }
 
 /// Input positions that carry data (CastLike's second input only gives a type).

@@ -8,10 +8,12 @@
 //! it); its nodes are then taken. A single node of a fused op is a fused site with the node's
 //! attributes.
 
+mod chains;
 mod expr;
 pub mod site;
 pub mod types;
 
+use std::cell::OnceCell;
 use std::collections::{BTreeMap, HashMap};
 use std::rc::Rc;
 
@@ -24,7 +26,8 @@ use crate::onnx::index::{ABSENT, GraphIndex, ModelIndex, TensorId};
 use crate::onnx::proto::NodeProto;
 use crate::onnx::proto::tensor_proto::DataType;
 use crate::schema_version::SchemaVersion;
-use expr::{Const, Expr, MAX_CHAIN, Op, Operand, Step};
+use chains::{Chain, Chains};
+use expr::{Const, Expr, Op, Step};
 pub use site::{Site, Spelling, TypeReader};
 use types::{Types, is_float};
 
@@ -89,22 +92,6 @@ impl Identified {
     }
 }
 
-/// The single-input chains ending at one node: the largest chain's nodes in topological
-/// order at `nodes[first..]`, and each chain's input and first node, smallest chain first.
-struct Chains {
-    nodes: [usize; MAX_CHAIN],
-    first: usize,
-    ends: SmallVec<[(u32, usize); 8]>,
-}
-
-impl Chains {
-    /// Chain `i`: its input and its nodes in topological order.
-    fn get(&self, i: usize) -> (u32, &[usize]) {
-        let (input, first) = self.ends[i];
-        (input, &self.nodes[first..])
-    }
-}
-
 struct GraphScan<'a, 'm> {
     index: &'a ModelIndex<'m>,
     g: usize,
@@ -116,8 +103,8 @@ struct GraphScan<'a, 'm> {
     ops: Vec<Option<Op>>,
     /// How many of each node's inputs carry data ([`expr::data_inputs`]).
     data_inputs: Vec<u32>,
-    /// Constant values by tensor id, filled on first use (inner None: not a constant).
-    consts: Vec<Option<Option<Rc<Const>>>>,
+    /// Constant values by tensor id, filled on first use (None: not a constant).
+    consts: Vec<OnceCell<Option<Rc<Const>>>>,
     covered: Vec<bool>,
     cache: &'a mut Cache,
     /// The chain being identified, compiled (one buffer for all).
@@ -151,7 +138,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 .iter()
                 .map(|n| expr::data_inputs(n) as u32)
                 .collect(),
-            consts: vec![None; graph.tensor_count()],
+            consts: vec![OnceCell::new(); graph.tensor_count()],
             covered: vec![false; graph.nodes.len()],
             cache,
             expr: Expr::default(),
@@ -200,27 +187,31 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     }
 
     /// The value of a tensor of this graph's nodes when it is a constant.
-    fn constant_id(&mut self, id: TensorId) -> Option<Rc<Const>> {
+    fn constant_id(&self, id: TensorId) -> Option<Rc<Const>> {
+        self.constant_ref(id).cloned()
+    }
+
+    /// [`Self::constant_id`], borrowed.
+    fn constant_ref(&self, id: TensorId) -> Option<&Rc<Const>> {
         if id == ABSENT {
             return None;
         }
-        if let Some(c) = &self.consts[id as usize] {
-            return c.clone();
-        }
-        let v = self.index.constant_by_id(self.g, id).map(|t| {
-            Rc::new(Const {
-                values: t.data,
-                dims: t.dims,
+        self.consts[id as usize]
+            .get_or_init(|| {
+                self.index.constant_by_id(self.g, id).map(|t| {
+                    Rc::new(Const {
+                        values: t.data,
+                        dims: t.dims,
+                    })
+                })
             })
-        });
-        self.consts[id as usize] = Some(v.clone());
-        v
+            .as_ref()
     }
 
     /// Adds the inputs of node `n` that carry computed (non-constant) data to `into`, each once.
-    fn add_dynamic_inputs(&mut self, n: usize, into: &mut Vec<u32>) {
+    fn add_dynamic_inputs(&self, n: usize, into: &mut Vec<u32>) {
         for &id in self.inputs(n) {
-            if id != ABSENT && !into.contains(&id) && self.constant_id(id).is_none() {
+            if id != ABSENT && !into.contains(&id) && self.constant_ref(id).is_none() {
                 into.push(id);
             }
         }
@@ -240,28 +231,28 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         if self.ops[n].is_some() {
             let chains = self.chains(n);
             for i in (0..chains.ends.len()).rev() {
-                let (input, nodes) = chains.get(i);
-                if nodes.len() == 1 && fused_op {
+                let chain = chains.get(i);
+                if chains.nodes(chain).len() == 1 && fused_op {
                     break;
                 }
-                let Some(found) = self.identify_chain(input, nodes) else {
+                let Some(found) = self.identify_chain(&chains, chain) else {
                     continue;
                 };
                 let smallest = (0..i).find_map(|j| {
-                    let (input, nodes) = chains.get(j);
-                    self.identify_chain(input, nodes)
+                    self.identify_chain(&chains, chains.get(j))
                         .filter(|f| f.same_as(&found))
                         .map(|f| (j, f))
                 });
                 let (j, found) = smallest.unwrap_or((i, found));
-                let (input, nodes) = chains.get(j);
+                let chain = chains.get(j);
+                let nodes = chains.nodes(chain);
                 if nodes.len() == 1 && fused_op {
                     return self.fused(n);
                 }
-                if self.ends_before_last(input, nodes, &found) {
+                if self.ends_before_last(&chains, chain, &found) {
                     break;
                 }
-                let input = self.graph.tensor_name(input);
+                let input = self.graph.tensor_name(chain.input);
                 return Some(self.site(
                     nodes,
                     input,
@@ -279,8 +270,8 @@ impl<'a, 'm> GraphScan<'a, 'm> {
 
     /// True when the chain's last node has one computed input and the chain without it is
     /// already what the chain is (`found`): that node is something after the activation.
-    fn ends_before_last(&mut self, input: u32, nodes: &[usize], found: &Identified) -> bool {
-        let (&last, rest) = nodes.split_last().expect("non-empty chain");
+    fn ends_before_last(&mut self, chains: &Chains, chain: Chain, found: &Identified) -> bool {
+        let (&last, rest) = chains.nodes(chain).split_last().expect("non-empty chain");
         if rest.is_empty() {
             return false;
         }
@@ -292,7 +283,11 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         if self.graph.producer_of(t).is_none_or(|p| !rest.contains(&p)) {
             return false;
         }
-        self.identify_chain(input, rest)
+        let rest = Chain {
+            end: chain.end - 1,
+            ..chain
+        };
+        self.identify_chain(chains, rest)
             .is_some_and(|f| f.same_as(found))
     }
 
@@ -301,13 +296,8 @@ impl<'a, 'm> GraphScan<'a, 'm> {
     /// The frontier tensor expanded is always the one produced last, so the nodes are taken in
     /// decreasing topological position: each chain's nodes are the last ones of the next
     /// larger chain's.
-    fn chains(&mut self, n: usize) -> Chains {
-        let mut chains = Chains {
-            nodes: [0; MAX_CHAIN],
-            first: MAX_CHAIN - 1,
-            ends: SmallVec::new(),
-        };
-        chains.nodes[MAX_CHAIN - 1] = n;
+    fn chains(&self, n: usize) -> Chains {
+        let mut chains = Chains::new(n);
         let mut frontier: Vec<u32> = Vec::new();
         self.add_dynamic_inputs(n, &mut frontier);
         while !frontier.is_empty() {
@@ -336,40 +326,50 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             chains.nodes[chains.first] = p;
             self.add_dynamic_inputs(p, &mut frontier);
         }
+        chains.read_operands(
+            |n| self.inputs(n),
+            |n| self.output(n).expect("chain nodes have one output"),
+        );
         chains
     }
 
-    /// Compiles and identifies a chain of float computations; its kind and parameters when the
-    /// catalogue recognises it.
-    fn identify_chain(&mut self, input: u32, nodes: &[usize]) -> Option<Identified> {
-        let last = *nodes.last()?;
+    /// Identifies a chain of float computations: its kind and parameters when the catalogue
+    /// recognises it. Most chains are spellings met before, so the chain's key is written from
+    /// its operands as read, and the chain is compiled only when the key is new.
+    fn identify_chain(&mut self, chains: &Chains, chain: Chain) -> Option<Identified> {
+        let last = *chains.nodes(chain).last()?;
         let output = self.output(last)?;
         let not_float = |t: TensorId| self.types.of_id(t).is_some_and(|dt| !is_float(dt));
-        if not_float(input) || not_float(output) {
+        if not_float(chain.input) || not_float(output) {
             return None;
         }
-        if !self.compile(input, nodes) {
+        let mut key = std::mem::take(&mut self.key);
+        key.clear();
+        let (mut nonlinear, mut integer) = (false, false);
+        let ops = &self.ops;
+        let walked = chains.walk(
+            chain,
+            |id| self.constant_id(id),
+            |n, args| {
+                let op = ops[n].as_ref().expect("chain nodes are element-wise");
+                nonlinear |= expr::is_nonlinear_step(op, args);
+                integer |= matches!(op, Op::Truncate);
+                expr::write_step_key(&mut key, op, args);
+            },
+        );
+        self.key = key;
+        let consts = walked?;
+        let (channels, shape) = expr::channels_of(&consts)?;
+        if !nonlinear || integer || channels > MAX_CHANNELS {
             return None;
         }
-        let expr = &self.expr;
-        let nonlinear = expr.steps.iter().any(|s| {
-            !expr::is_linear(&s.op)
-                || (matches!(s.op, Op::Mul | Op::Div | Op::Pow)
-                    && s.args
-                        .iter()
-                        .filter(|a| matches!(a, Operand::X | Operand::Step(_)))
-                        .count()
-                        > 1)
-        });
-        let integer = expr.steps.iter().any(|s| matches!(s.op, Op::Truncate));
-        if !nonlinear || integer || expr.channels > MAX_CHANNELS {
-            return None;
+        for c in &consts {
+            expr::write_const_key(&mut self.key, &c.values);
         }
-        expr.write_key(&mut self.key);
         let found = match self.cache.get(self.key.as_slice()) {
             Some(r) => r.clone(),
             None => {
-                let shared = expr.shared();
+                let shared = self.compile(chains, chain, &consts, channels).shared();
                 let r =
                     catalog::identify_channels(&|x, c| shared.eval(x, c), shared.channels, None)
                         .map(|(kind, params)| Identified { kind, params });
@@ -380,64 +380,46 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         // The cache key holds the constants' values, not their dims: the shape is this chain's.
         Some(Identified {
             kind: found.kind,
-            params: Params::new(found.params.values().to_vec(), expr.channel_shape.clone()),
+            params: Params::new(found.params.values().to_vec(), shape.map(<[usize]>::to_vec)),
         })
     }
 
-    /// Compiles the chain into [`Self::expr`]; false when a node is not element-wise, an
-    /// operand is neither computed in the chain nor a constant, or the per-channel constants
-    /// disagree.
-    fn compile(&mut self, input: u32, nodes: &[usize]) -> bool {
+    /// Compiles a chain already walked (its constants `consts`, its channel count `channels`)
+    /// into [`Self::expr`].
+    fn compile(
+        &mut self,
+        chains: &Chains,
+        chain: Chain,
+        consts: &[Rc<Const>],
+        channels: usize,
+    ) -> &Expr {
         let mut expr = std::mem::take(&mut self.expr);
-        let compiled = self.compile_into(input, nodes, &mut expr);
-        self.expr = expr;
-        compiled.is_some()
-    }
-
-    fn compile_into(&mut self, input: u32, nodes: &[usize], expr: &mut Expr) -> Option<()> {
         expr.steps.clear();
-        expr.consts.clear();
-        expr.channel_shape = None;
-        // Chains are short: linear lookups beat hashing here.
-        let mut const_ids: SmallVec<[u32; 8]> = SmallVec::new();
-        let mut step_outputs: SmallVec<[u32; MAX_CHAIN]> = SmallVec::new();
-        for &n in nodes {
-            let op = self.ops[n].clone()?;
-            let mut args = SmallVec::new();
-            for &id in self.inputs(n) {
-                let a = if id == ABSENT {
-                    Operand::None
-                } else if id == input {
-                    Operand::X
-                } else if let Some(s) = step_outputs.iter().position(|&t| t == id) {
-                    Operand::Step(s)
-                } else if let Some(c) = const_ids.iter().position(|&t| t == id) {
-                    Operand::Const(c)
-                } else {
-                    expr.consts.push(self.constant_id(id)?);
-                    const_ids.push(id);
-                    Operand::Const(expr.consts.len() - 1)
-                };
-                args.push(a);
-            }
-            step_outputs.push(self.output(n)?);
-            expr.steps.push(Step { op, args });
-        }
-        let consts = &expr.consts;
-        let mut multi = consts.iter().filter(|c| c.values.len() > 1);
-        let first = multi.clone().next();
-        let channels = first.map_or(1, |c| c.values.len());
-        if let Some(first) = first
-            && multi.any(|c| c.values.len() != channels || !same_squeezed(&c.dims, &first.dims))
-        {
-            return None;
-        }
-        if consts.iter().any(|c| c.values.is_empty()) {
-            return None;
-        }
-        expr.channel_shape = first.map(|c| c.dims.clone());
+        let ops = &self.ops;
+        chains
+            .walk(
+                chain,
+                |id| self.constant_id(id),
+                |n, args| {
+                    expr.steps.push(Step {
+                        op: ops[n].clone().expect("chain nodes are element-wise"),
+                        args: SmallVec::from_slice(args),
+                    })
+                },
+            )
+            .expect("a chain walked once walks again");
+        expr.consts = consts.iter().cloned().collect();
         expr.channels = channels;
-        Some(())
+        if cfg!(debug_assertions) {
+            let mut compiled = Vec::new();
+            expr.write_key(&mut compiled);
+            assert_eq!(
+                compiled, self.key,
+                "the key written from the walk is the chain's"
+            );
+        }
+        self.expr = expr;
+        &self.expr
     }
 
     fn fused(&mut self, n: usize) -> Option<Site> {
@@ -539,7 +521,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 let produced_inside = graph.producer_of(id).is_some_and(|p| inside.contains(&p));
                 if !produced_inside
                     && !constants.iter().any(|c| c == name)
-                    && self.constant_id(id).is_some()
+                    && self.constant_ref(id).is_some()
                 {
                     constants.push(name.to_string());
                 }
@@ -660,11 +642,4 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             })
             .unwrap_or(DataType::Float)
     }
-}
-
-/// Whether two shapes are equal without their 1s, as `[1, C, 1, 1]` and `[C, 1, 1]` are.
-fn same_squeezed(a: &[usize], b: &[usize]) -> bool {
-    a.iter()
-        .filter(|&&d| d != 1)
-        .eq(b.iter().filter(|&&d| d != 1))
 }

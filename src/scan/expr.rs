@@ -2,6 +2,8 @@
 //! f64 with the model's own (usually float32-rounded) constants. Constants of more than one element
 //! make the function per-channel: channel `c` reads element `c` of each of them.
 
+use std::collections::HashMap;
+use std::hash::{BuildHasher, Hasher};
 use std::ops::Deref;
 use std::rc::Rc;
 use std::sync::Arc;
@@ -83,6 +85,45 @@ pub struct Step {
 pub struct Const {
     pub values: Vec<f64>,
     pub dims: Vec<usize>,
+    /// The scan's number for these values: equal values, equal number.
+    pub key: u32,
+}
+
+/// Numbers for the values of constants, shared across a scan's graphs: equal values (bit for
+/// bit) get one number ([`Const::key`]), so a chain key names a constant by its number.
+#[derive(Default)]
+pub struct ConstNumbers {
+    /// The constants numbered so far, by a hash of their values.
+    by_hash: HashMap<u64, SmallVec<[Rc<Const>; 1]>, foldhash::fast::RandomState>,
+    count: u32,
+}
+
+impl ConstNumbers {
+    /// A constant of these values and dims, with its values' number.
+    pub fn constant(&mut self, values: Vec<f64>, dims: Vec<usize>) -> Rc<Const> {
+        let same_values = |c: &Rc<Const>| {
+            c.values.len() == values.len()
+                && c.values
+                    .iter()
+                    .zip(&values)
+                    .all(|(a, b)| a.to_bits() == b.to_bits())
+        };
+        let mut hasher = self.by_hash.hasher().build_hasher();
+        values.iter().for_each(|x| hasher.write_u64(x.to_bits()));
+        let known = self.by_hash.entry(hasher.finish()).or_default();
+        if let Some(same) = known.iter().find(|c| same_values(c)) {
+            let key = same.key;
+            return Rc::new(Const { values, dims, key });
+        }
+        let c = Rc::new(Const {
+            values,
+            dims,
+            key: self.count,
+        });
+        self.count += 1;
+        known.push(c.clone());
+        c
+    }
 }
 
 /// The compiled chain. A scan compiles only the chains whose key it has not met, into one reused
@@ -207,43 +248,84 @@ impl<C: Deref<Target = Const>> Expr<C> {
     }
 
     /// Writes into `k` this chain's key (see [`write_step_key`]). The scanner writes the same key
-    /// while walking a chain's operands, and checks it against this one for every chain it
+    /// from what it read of a node's chains, and checks it against this one for every chain it
     /// compiles.
     pub fn write_key(&self, k: &mut Vec<u64>) {
         k.clear();
         for s in &self.steps {
-            write_step_key(k, &s.op, &s.args);
-        }
-        for c in &self.consts {
-            write_const_key(k, &c.values);
+            write_step_key(k, &s.op, &s.args, &self.consts);
         }
     }
 }
 
 /// Appends a step to a chain key: a key is equal for chains that compute the same function
-/// (same ops, wiring and constants), so identification runs once per distinct spelling. It is
-/// every step in order, then every constant's values ([`write_const_key`]). A step is its op
-/// and operand count in one word, the op's payload, then its operands two to a word; every part
-/// is length-prefixed, so different chains never share a key.
-pub fn write_step_key(k: &mut Vec<u64>, op: &Op, args: &[Operand]) {
+/// (same ops, wiring and constant values), so identification runs once per distinct spelling.
+/// It is every step in order: its op and operand count in one word, the op's payload, then its
+/// operands two to a word ([`Codes`]). Every part is length-prefixed, so different chains
+/// never share a key.
+pub fn write_step_key<C: Deref<Target = Const>>(
+    k: &mut Vec<u64>,
+    op: &Op,
+    args: &[Operand],
+    consts: &[C],
+) {
     op.encode(args.len(), k);
-    // An index fits in 30 bits: a model (under 2 GiB) cannot name 2^30 tensors.
-    let code = |a: &Operand| match *a {
-        Operand::None => 0,
-        Operand::X => 1 << 30,
-        Operand::Step(j) => (2 << 30) | j as u64,
-        Operand::Const(j) => (3 << 30) | j as u64,
-    };
-    let mut args = args.iter();
-    while let Some(a) = args.next() {
-        k.push(code(a) << 32 | args.next().map_or(0, code));
+    let mut codes = Codes::new(k);
+    for &a in args {
+        codes.push(operand_code(a, consts));
+    }
+    codes.finish();
+}
+
+/// The code of an operand in a chain key, `consts` being the chain's constants.
+fn operand_code<C: Deref<Target = Const>>(a: Operand, consts: &[C]) -> u64 {
+    match a {
+        Operand::None => NONE_CODE,
+        Operand::X => X_CODE,
+        Operand::Step(j) => step_code(j),
+        Operand::Const(j) => const_code(&consts[j]),
     }
 }
 
-/// Appends a constant's values to a chain key, after all its steps.
-pub fn write_const_key(k: &mut Vec<u64>, values: &[f64]) {
-    k.push(values.len() as u64);
-    k.extend(values.iter().map(|v| v.to_bits()));
+// Operand codes in a chain key. An index or a constant's number fits in 30 bits: a model
+// (under 2 GiB) cannot name 2^30 tensors.
+pub const NONE_CODE: u64 = 0;
+pub const X_CODE: u64 = 1 << 30;
+
+/// The code of the result of step `j`.
+pub fn step_code(j: usize) -> u64 {
+    (2 << 30) | j as u64
+}
+
+/// The code of a constant: its values' number ([`Const::key`]).
+pub fn const_code(c: &Const) -> u64 {
+    (3 << 30) | u64::from(c.key)
+}
+
+/// A step's operand codes being appended to a chain key, two to a word.
+pub struct Codes<'k> {
+    key: &'k mut Vec<u64>,
+    half: Option<u64>,
+}
+
+impl<'k> Codes<'k> {
+    pub fn new(key: &'k mut Vec<u64>) -> Self {
+        Codes { key, half: None }
+    }
+
+    pub fn push(&mut self, code: u64) {
+        match self.half.take() {
+            Some(first) => self.key.push(first << 32 | code),
+            None => self.half = Some(code),
+        }
+    }
+
+    /// Ends the step: an odd last code takes a word of its own.
+    pub fn finish(self) {
+        if let Some(first) = self.half {
+            self.key.push(first << 32);
+        }
+    }
 }
 
 /// The channel count of a chain's constants and the shape of its multi-element ones (`None`
@@ -274,7 +356,7 @@ fn same_squeezed(a: &[usize], b: &[usize]) -> bool {
 impl Op {
     /// Appends to a chain key a word for the op and its operand count (`args`), then the op's
     /// payload.
-    fn encode(&self, args: usize, k: &mut Vec<u64>) {
+    pub fn encode(&self, args: usize, k: &mut impl Extend<u64>) {
         let word = |tag: u64| tag | (args as u64) << 8;
         let tag = match self {
             Op::Add => 0,
@@ -318,7 +400,7 @@ impl Op {
                 return;
             }
         };
-        k.push(word(tag));
+        k.extend([word(tag)]);
     }
 }
 
@@ -383,19 +465,14 @@ pub fn op_of(node: &NodeProto, opset: i64) -> Option<Op> {
     })
 }
 
-/// True unless the step's result is linear in its one dynamic operand; a chain without such a
-/// step is never an activation.
-pub fn is_nonlinear_step(op: &Op, args: &[Operand]) -> bool {
+/// True unless a step with `dynamic` computed (not constant) operands is linear in its one
+/// computed operand; a chain without such a step is never an activation.
+pub fn is_nonlinear_step(op: &Op, dynamic: usize) -> bool {
     let linear = matches!(
         op,
         Op::Add | Op::Sub | Op::Mul | Op::Div | Op::Neg | Op::Pass | Op::Sum
     );
-    let dynamic = || {
-        args.iter()
-            .filter(|a| matches!(a, Operand::X | Operand::Step(_)))
-            .count()
-    };
-    !linear || (matches!(op, Op::Mul | Op::Div | Op::Pow) && dynamic() > 1)
+    !linear || (matches!(op, Op::Mul | Op::Div | Op::Pow) && dynamic > 1)
 }
 
 /// Input positions that carry data (CastLike's second input only gives a type).

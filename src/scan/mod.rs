@@ -13,7 +13,7 @@ mod expr;
 pub mod site;
 pub mod types;
 
-use std::cell::OnceCell;
+use std::cell::{OnceCell, RefCell};
 use std::collections::{BTreeMap, HashMap};
 use std::rc::Rc;
 
@@ -27,7 +27,7 @@ use crate::onnx::proto::NodeProto;
 use crate::onnx::proto::tensor_proto::DataType;
 use crate::schema_version::SchemaVersion;
 use chains::{Chain, Chains};
-use expr::{Const, Expr, Op, Step};
+use expr::{Const, ConstNumbers, Expr, Op, Step};
 pub use site::{Site, Spelling, TypeReader};
 use types::{Types, is_float};
 
@@ -53,11 +53,12 @@ pub struct ScanReport {
 /// Scans every graph of the model (main, subgraphs, functions).
 pub fn scan(index: &ModelIndex) -> ScanReport {
     let mut cache = Cache::default();
+    let numbers = RefCell::new(ConstNumbers::default());
     let mut sites = Vec::new();
     let mut types: Vec<Types> = Vec::with_capacity(index.graphs.len());
     for (g, graph) in index.graphs.iter().enumerate() {
         let t = Types::infer(graph, graph.parent.map(|p| &types[p]));
-        GraphScan::new(index, g, &t, &mut cache).run(&mut sites);
+        GraphScan::new(index, g, &t, &mut cache, &numbers).run(&mut sites);
         types.push(t);
     }
     for (i, s) in sites.iter_mut().enumerate() {
@@ -107,6 +108,7 @@ struct GraphScan<'a, 'm> {
     consts: Vec<OnceCell<Option<Rc<Const>>>>,
     covered: Vec<bool>,
     cache: &'a mut Cache,
+    numbers: &'a RefCell<ConstNumbers>,
     /// The chain being identified, compiled (one buffer for all).
     expr: Expr,
     /// Its key (one buffer for all).
@@ -119,6 +121,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         g: usize,
         types: &'a Types<'a, 'm>,
         cache: &'a mut Cache,
+        numbers: &'a RefCell<ConstNumbers>,
     ) -> Self {
         let graph = &index.graphs[g];
         let mut pos = vec![0; graph.nodes.len()];
@@ -141,6 +144,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             consts: vec![OnceCell::new(); graph.tensor_count()],
             covered: vec![false; graph.nodes.len()],
             cache,
+            numbers,
             expr: Expr::default(),
             key: Vec::new(),
         }
@@ -198,12 +202,8 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         }
         self.consts[id as usize]
             .get_or_init(|| {
-                self.index.constant_by_id(self.g, id).map(|t| {
-                    Rc::new(Const {
-                        values: t.data,
-                        dims: t.dims,
-                    })
-                })
+                let t = self.index.constant_by_id(self.g, id)?;
+                Some(self.numbers.borrow_mut().constant(t.data, t.dims))
             })
             .as_ref()
     }
@@ -326,16 +326,19 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             chains.nodes[chains.first] = p;
             self.add_dynamic_inputs(p, &mut frontier);
         }
+        let ops: &[Option<Op>] = &self.ops;
         chains.read_operands(
             |n| self.inputs(n),
             |n| self.output(n).expect("chain nodes have one output"),
+            |n| ops[n].as_ref().expect("chain nodes are element-wise"),
+            |id| self.constant_id(id),
         );
         chains
     }
 
     /// Identifies a chain of float computations: its kind and parameters when the catalogue
     /// recognises it. Most chains are spellings met before, so the chain's key is written from
-    /// its operands as read, and the chain is compiled only when the key is new.
+    /// what was read of the node's chains, and the chain is compiled only when the key is new.
     fn identify_chain(&mut self, chains: &Chains, chain: Chain) -> Option<Identified> {
         let last = *chains.nodes(chain).last()?;
         let output = self.output(last)?;
@@ -343,28 +346,11 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         if not_float(chain.input) || not_float(output) {
             return None;
         }
-        let mut key = std::mem::take(&mut self.key);
-        key.clear();
-        let (mut nonlinear, mut integer) = (false, false);
-        let ops = &self.ops;
-        let walked = chains.walk(
-            chain,
-            |id| self.constant_id(id),
-            |n, args| {
-                let op = ops[n].as_ref().expect("chain nodes are element-wise");
-                nonlinear |= expr::is_nonlinear_step(op, args);
-                integer |= matches!(op, Op::Truncate);
-                expr::write_step_key(&mut key, op, args);
-            },
-        );
-        self.key = key;
-        let consts = walked?;
+        let keyed = chains.write_key(chain, &mut self.key)?;
+        let consts = keyed.consts;
         let (channels, shape) = expr::channels_of(&consts)?;
-        if !nonlinear || integer || channels > MAX_CHANNELS {
+        if !keyed.nonlinear || keyed.integer || channels > MAX_CHANNELS {
             return None;
-        }
-        for c in &consts {
-            expr::write_const_key(&mut self.key, &c.values);
         }
         let found = match self.cache.get(self.key.as_slice()) {
             Some(r) => r.clone(),
@@ -377,14 +363,14 @@ impl<'a, 'm> GraphScan<'a, 'm> {
                 r
             }
         }?;
-        // The cache key holds the constants' values, not their dims: the shape is this chain's.
+        // The cache key names the constants' values, not their dims: the shape is this chain's.
         Some(Identified {
             kind: found.kind,
             params: Params::new(found.params.values().to_vec(), shape.map(<[usize]>::to_vec)),
         })
     }
 
-    /// Compiles a chain already walked (its constants `consts`, its channel count `channels`)
+    /// Compiles a chain already keyed (its constants `consts`, its channel count `channels`)
     /// into [`Self::expr`].
     fn compile(
         &mut self,
@@ -397,17 +383,13 @@ impl<'a, 'm> GraphScan<'a, 'm> {
         expr.steps.clear();
         let ops = &self.ops;
         chains
-            .walk(
-                chain,
-                |id| self.constant_id(id),
-                |n, args| {
-                    expr.steps.push(Step {
-                        op: ops[n].clone().expect("chain nodes are element-wise"),
-                        args: SmallVec::from_slice(args),
-                    })
-                },
-            )
-            .expect("a chain walked once walks again");
+            .walk(chain, |n, args| {
+                expr.steps.push(Step {
+                    op: ops[n].clone().expect("chain nodes are element-wise"),
+                    args: SmallVec::from_slice(args),
+                })
+            })
+            .expect("a chain keyed walks");
         expr.consts = consts.iter().cloned().collect();
         expr.channels = channels;
         if cfg!(debug_assertions) {
@@ -415,7 +397,7 @@ impl<'a, 'm> GraphScan<'a, 'm> {
             expr.write_key(&mut compiled);
             assert_eq!(
                 compiled, self.key,
-                "the key written from the walk is the chain's"
+                "the key written from what was read is the chain's"
             );
         }
         self.expr = expr;

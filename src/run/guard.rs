@@ -9,6 +9,7 @@ use std::cell::Cell;
 use std::panic::{AssertUnwindSafe, catch_unwind};
 
 use super::RunError;
+use super::vector_state;
 
 thread_local! {
     /// How many guarded sections the current thread is inside.
@@ -43,11 +44,13 @@ impl Failure {
     }
 }
 
-/// Runs `f`, catching a panic inside it.
+/// Runs `f`, catching a panic inside it; the vector registers are then left as compiled code
+/// expects them ([`vector_state::settle`]).
 pub(crate) fn catch<T>(f: impl FnOnce() -> anyhow::Result<T>) -> Result<T, Failure> {
     DEPTH.with(|d| d.set(d.get() + 1));
     let result = catch_unwind(AssertUnwindSafe(f));
     DEPTH.with(|d| d.set(d.get() - 1));
+    vector_state::settle();
     match result {
         Ok(Ok(value)) => Ok(value),
         Ok(Err(error)) => Err(Failure::Error(error)),

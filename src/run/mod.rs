@@ -50,6 +50,7 @@ mod symbols;
 mod tensor;
 mod typing;
 mod unary;
+mod vector_state;
 mod weights;
 
 pub use ceiling::DEFAULT_MEMORY_CEILING;

@@ -112,6 +112,11 @@ impl Conversion {
         Plan::build(sites, &self.policy(ranges), index.main().opset(""))
     }
 
+    /// Computes the plan's bounds over the real line for `sites` ahead ([`Plan::bounds_ahead`]).
+    pub fn bounds_ahead(&self, sites: &[Site]) {
+        Plan::bounds_ahead(sites, &self.policy(&self.ranges));
+    }
+
     /// The model's sites, only those asked for (refusing unknown ids).
     pub fn sites(&self, index: &ModelIndex, model: &Path) -> Result<Vec<Site>> {
         let mut sites = scan::scan(index).sites;

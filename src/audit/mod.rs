@@ -96,8 +96,12 @@ pub fn audit(
     let loaded = inputs.load(&specs)?;
     let sites = conversion.sites(&index, path)?;
     // The original model runs once: its values give calibration its ranges and drift its
-    // reference.
-    let original = measure::capture_original(&index, &sites, &loaded.samples, opts)?;
+    // reference. The plan's bounds over the real line are computed meanwhile, on a thread of
+    // their own.
+    let original = std::thread::scope(|scope| {
+        scope.spawn(|| conversion.bounds_ahead(&sites));
+        measure::capture_original(&index, &sites, &loaded.samples, opts)
+    })?;
     let ranges = fit_ranges(conversion, || {
         measure::calibrate::ranges(&index, &sites, original.main())
     })?;

@@ -33,7 +33,7 @@ use super::isolate::{self, Extract, InputDecl, Part};
 use super::latency::{self, LatencyOptions};
 use super::metrics::{DriftAccumulator, Tolerance, Top1Accumulator, top1_applies};
 use super::pairs::SitePair;
-use super::range::RangeCollector;
+use super::range::{InputRange, RangeCollector};
 use super::result::{CAUTION, DriftReport, LocalBasis, OutputDrift, SiteDrift, UnmatchedSite};
 use super::runnable::{self, Runnable};
 use super::subgraphs::{self, Captures};
@@ -198,7 +198,27 @@ pub fn compare(
         Some(c) => c.captures,
         None => a.capture(samples, asks_a)?,
     };
-    let cap_b = b.capture(samples, asks_b)?;
+    // The worst-case bounds need only the catalogue and the original's values: they are
+    // computed on a thread of their own while the rewritten model runs.
+    let ahead: Vec<Option<BoundJob>> = pairs
+        .iter()
+        .zip(&reach)
+        .map(|(p, reach)| BoundJob::ahead(p, reach, &cap_a))
+        .collect();
+    let (cap_b, worst) = std::thread::scope(|scope| {
+        let worst = scope.spawn(|| {
+            ahead
+                .iter()
+                .map(|job| job.as_ref().map(BoundJob::compute))
+                .collect::<Vec<_>>()
+        });
+        let cap_b = b.capture(samples, asks_b);
+        let worst = worst
+            .join()
+            .unwrap_or_else(|panic| std::panic::resume_unwind(panic));
+        (cap_b, worst)
+    });
+    let cap_b = cap_b?;
     let pairs: Vec<Pair> = pairs
         .iter()
         .zip(reach)
@@ -206,24 +226,19 @@ pub fn compare(
         .collect();
 
     let mut sites: Vec<SiteDrift> = pairs.iter().map(Pair::record).collect();
-    let mut bounds: Vec<BoundJob> = Vec::new();
     for (i, (p, rec)) in pairs.iter().zip(sites.iter_mut()).enumerate() {
         measure_propagated(p, rec, opts.tolerance);
-        bounds.extend(measure_range(p, rec, i));
+        if let Some((job, note_at)) = measure_range(p, rec) {
+            // The bound computed ahead is over the same range whenever the rewritten model
+            // reached the site as the original did, which is when a range is measured at all.
+            let bound = match (&ahead[i], &worst[i]) {
+                (Some(early), Some(bound)) if early.asks_as(&job) => bound.clone(),
+                _ => job.compute(),
+            };
+            record_bound(rec, note_at, bound);
+        }
     }
-    // The worst-case bounds need only the catalogue: they are computed on a thread of their
-    // own while the isolated sites run.
-    let (isolated, worst) = std::thread::scope(|scope| {
-        let worst = scope.spawn(|| bounds.iter().map(BoundJob::compute).collect::<Vec<_>>());
-        let isolated = measure_local(&a, &b, &pairs, &mut sites, opts.tolerance);
-        let worst = worst
-            .join()
-            .unwrap_or_else(|panic| std::panic::resume_unwind(panic));
-        (isolated, worst)
-    });
-    for (job, bound) in bounds.iter().zip(worst) {
-        job.record(&mut sites[job.site], bound);
-    }
+    let isolated = measure_local(&a, &b, &pairs, &mut sites, opts.tolerance);
     let outputs = measure_outputs(&a, &b, cap_a.main(), cap_b.main(), opts.tolerance);
     let latency = match opts.latency {
         Some(lat) => {
@@ -490,39 +505,56 @@ fn measure_propagated(p: &Pair, rec: &mut SiteDrift, tol: Tolerance) {
 }
 
 /// Measures the range of the site's input on the samples; the worst-case bound over it is
-/// left to the returned job.
-fn measure_range<'s>(p: &Pair<'s, '_>, rec: &mut SiteDrift, site: usize) -> Option<BoundJob<'s>> {
+/// left to the returned job, and a failure to bound goes in the notes at the returned position
+/// (after the notes before the range).
+fn measure_range<'s>(p: &Pair<'s, '_>, rec: &mut SiteDrift) -> Option<(BoundJob<'s>, usize)> {
     let values_a = p.reached_a();
     if values_a.is_empty() {
         return None;
     }
-    let mut range = RangeCollector::default();
-    for v in values_a {
-        match widen(&v[&p.a.input]) {
-            Ok(x) => range.add(&x),
-            Err(e) => {
-                rec.notes
-                    .push(format!("input range not measured: {}", flat(&e)));
-                return None;
-            }
+    match input_range(&values_a, &p.a.input) {
+        Err(e) => {
+            rec.notes.push(format!("input range not measured: {e}"));
+            None
         }
-    }
-    rec.input_range = range.finish();
-    match rec.input_range {
-        None => {
+        Ok(None) => {
             rec.notes
                 .push("input range: no finite input value was seen".into());
             None
         }
-        Some(r) => Some(BoundJob {
-            a: p.a,
-            b: p.b,
-            fit: p.fit,
-            lo: r.min,
-            hi: r.max,
-            site,
-            note_at: rec.notes.len(),
-        }),
+        Ok(Some(r)) => {
+            rec.input_range = Some(r);
+            let job = BoundJob {
+                a: p.a,
+                b: p.b,
+                fit: p.fit,
+                lo: r.min,
+                hi: r.max,
+            };
+            Some((job, rec.notes.len()))
+        }
+    }
+}
+
+/// The range of tensor `input` over `values`; `None` when no finite value was seen.
+fn input_range(values: &[&Values], input: &str) -> Result<Option<InputRange>, String> {
+    let mut range = RangeCollector::default();
+    for v in values {
+        range.add(&widen(&v[input]).map_err(|e| flat(&e))?);
+    }
+    Ok(range.finish())
+}
+
+/// Records a site's worst-case bound, or why there is none at `note_at` of its notes.
+fn record_bound(rec: &mut SiteDrift, note_at: usize, bound: Result<(f64, f64), String>) {
+    match bound {
+        Ok((value, at)) => {
+            rec.bound_over_range = Some(value);
+            rec.bound_at = Some(at);
+        }
+        Err(why) => rec
+            .notes
+            .insert(note_at, format!("no worst-case bound: {why}")),
     }
 }
 
@@ -534,13 +566,38 @@ struct BoundJob<'s> {
     fit: Option<&'s Fitted>,
     lo: f64,
     hi: f64,
-    /// The site's index in the report.
-    site: usize,
-    /// Where in the site's notes a failure to bound goes (after the notes before the range).
-    note_at: usize,
 }
 
-impl BoundJob<'_> {
+impl<'s> BoundJob<'s> {
+    /// The job [`measure_range`] will give for `p` once the rewritten model has run, from the
+    /// original's values alone; `None` where it will give none (or may not).
+    fn ahead(p: &'s SitePair, reach: &Result<(), String>, cap_a: &Captures) -> Option<Self> {
+        reach.as_ref().ok()?;
+        let values: Vec<&Values> = cap_a
+            .at(p.a.graph_index)
+            .ok()?
+            .into_iter()
+            .flatten()
+            .collect();
+        let r = input_range(&values, &p.a.input).ok()??;
+        Some(BoundJob {
+            a: &p.a,
+            b: &p.b,
+            fit: p.fit.as_ref(),
+            lo: r.min,
+            hi: r.max,
+        })
+    }
+
+    /// Whether `other` asks the same: the same sites, fit and range, bit for bit.
+    fn asks_as(&self, other: &BoundJob) -> bool {
+        std::ptr::eq(self.a, other.a)
+            && std::ptr::eq(self.b, other.b)
+            && self.fit.map(std::ptr::from_ref) == other.fit.map(std::ptr::from_ref)
+            && self.lo.to_bits() == other.lo.to_bits()
+            && self.hi.to_bits() == other.hi.to_bits()
+    }
+
     /// The worst case over [lo, hi], worst channel first (the fit's error, for a fitted form);
     /// and where.
     fn compute(&self) -> Result<(f64, f64), String> {
@@ -556,18 +613,6 @@ impl BoundJob<'_> {
         let (e, _) =
             substitute::max_abs_error_per_channel((a.kind, pa), (b.kind, pb), self.lo, self.hi)?;
         Ok((e.value, e.at))
-    }
-
-    fn record(&self, rec: &mut SiteDrift, bound: Result<(f64, f64), String>) {
-        match bound {
-            Ok((value, at)) => {
-                rec.bound_over_range = Some(value);
-                rec.bound_at = Some(at);
-            }
-            Err(why) => rec
-                .notes
-                .insert(self.note_at, format!("no worst-case bound: {why}")),
-        }
     }
 }
 
@@ -694,6 +739,7 @@ fn measure_local(
             let tract = side.prepare(&isolate::build(side.model, parts), what)?;
             capture::run_samples(&tract, &samples, &[], what)
         };
+        // The two sides run at once, one of them on a thread of its own.
         let runs = run_isolated(a, &parts_a, "isolated original sites")
             .and_then(|ra| Ok((ra, run_isolated(b, &parts_b, "isolated new sites")?)));
         let (out_a, out_b) = match runs {

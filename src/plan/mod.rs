@@ -143,6 +143,19 @@ impl Plan {
         Plan { sites, warnings }
     }
 
+    /// Computes the worst-case bounds over the real line that [`Plan::build`] weighs for
+    /// `sites` under `policy`, one site after the other. They need only the sites, not the
+    /// fitting ranges, so a caller runs this beside the run that observes those ranges; the
+    /// plan then finds them in the catalogue's memo ([`substitute::max_abs_error`]) and is the
+    /// same either way.
+    pub fn bounds_ahead(sites: &[Site], policy: &Policy) {
+        for site in sites {
+            if let (Some(params), Some(only)) = (&site.params, weighed(site, policy)) {
+                candidates(site.kind, params, only);
+            }
+        }
+    }
+
     /// Sites no accepted form can serve.
     pub fn unserved(&self) -> usize {
         self.sites
@@ -381,6 +394,20 @@ fn rewrite_fitted(
         alternatives,
         emitted,
     })
+}
+
+/// The kind [`candidates`] is limited to when [`plan_site`] may weigh the substitutions of
+/// `site` (`None`: all of them); `None` when it will not: parameters unknown, not rewritable,
+/// a fitted form asked for, or neither a request nor a target for its kind.
+fn weighed(site: &Site, policy: &Policy) -> Option<Option<&'static Kind>> {
+    if site.params.is_none() || !site.rewritable {
+        return None;
+    }
+    match request::select(policy.requests, site.kind) {
+        Some(r) if r.form == Some(Form::Fitted) => None,
+        Some(r) => Some(Some(r.to.unwrap_or(site.kind))),
+        None => policy.target.map(|_| None),
+    }
 }
 
 /// Replacement kinds for a site of `kind` with `params`: its own kind first (exact), then the

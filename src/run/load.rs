@@ -6,7 +6,7 @@ use std::sync::Arc;
 
 use prost::Message;
 use tract_onnx::pb::tensor_proto::DataLocation;
-use tract_onnx::pb::{GraphProto, ModelProto, TensorProto};
+use tract_onnx::pb::{GraphProto, ModelProto, TensorProto, ValueInfoProto};
 use tract_onnx::prelude::{InferenceModel, OutletId};
 use tract_onnx::tract_core::ops::unimpl::UnimplementedOp;
 
@@ -57,9 +57,12 @@ pub fn prepare_parts(
         .as_mut()
         .ok_or_else(|| RunError::Decode("no graph".to_string()))?;
     for tensor in initializers {
+        // Decoded from a buffer that owns the bytes, prost hands the tensor data over as a
+        // slice of it: the data is copied once, into the message, instead of twice.
+        let tensor = bytes::Bytes::from(tensor);
         graph
             .initializer
-            .push(TensorProto::decode(&tensor[..]).map_err(decode_error)?);
+            .push(TensorProto::decode(tensor).map_err(decode_error)?);
     }
     load(proto, model_dir)
 }
@@ -71,7 +74,8 @@ fn load(mut proto: ModelProto, model_dir: Option<&Path>) -> Result<TractModel, R
         .as_mut()
         .ok_or_else(|| RunError::Decode("no graph".to_string()))?;
     let origins = make_node_names_unique(graph);
-    let inputs = read_inputs(graph)?;
+    let initializers = graph.initializer.iter().map(|t| t.name.as_str()).collect();
+    let inputs = read_inputs(&graph.input, &initializers)?;
     let outputs = graph.output.iter().map(|o| o.name.clone()).collect();
     let dir = model_dir
         .map(|d| {
@@ -121,14 +125,40 @@ fn load(mut proto: ModelProto, model_dir: Option<&Path>) -> Result<TractModel, R
 }
 
 /// The inputs a model takes (graph inputs that are not initializers, in graph order), read from
-/// its bytes without loading it into tract.
+/// its bytes without loading it into tract, and without copying its weights: only the main
+/// graph's inputs and its initializers' names are decoded ([`ModelInputs`]).
 pub fn input_specs(model_bytes: &[u8]) -> Result<Vec<InputSpec>, RunError> {
-    let proto = ModelProto::decode(model_bytes).map_err(|e| RunError::Decode(e.to_string()))?;
+    let proto = ModelInputs::decode(model_bytes).map_err(|e| RunError::Decode(e.to_string()))?;
     let graph = proto
         .graph
         .as_ref()
         .ok_or_else(|| RunError::Decode("no graph".to_string()))?;
-    read_inputs(graph)
+    let initializers = graph.initializer.iter().map(|t| t.name.as_str()).collect();
+    read_inputs(&graph.input, &initializers)
+}
+
+/// What [`input_specs`] reads of a `ModelProto` (field numbers of the ONNX schema); prost skips
+/// every other field, tensor data included, without copying it.
+#[derive(Clone, PartialEq, prost::Message)]
+struct ModelInputs {
+    #[prost(message, optional, tag = "7")]
+    graph: Option<GraphInputs>,
+}
+
+/// A `GraphProto`'s initializers (by name) and inputs.
+#[derive(Clone, PartialEq, prost::Message)]
+struct GraphInputs {
+    #[prost(message, repeated, tag = "5")]
+    initializer: Vec<TensorName>,
+    #[prost(message, repeated, tag = "11")]
+    input: Vec<ValueInfoProto>,
+}
+
+/// A `TensorProto`'s name.
+#[derive(Clone, PartialEq, prost::Message)]
+struct TensorName {
+    #[prost(string, tag = "8")]
+    name: String,
 }
 
 /// Refuses a graph whose initializers live in external files, which need the model's folder.
@@ -177,5 +207,52 @@ impl TractModel {
             compilation,
             ..self
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use prost::Message;
+
+    use super::{input_specs, prepare};
+    use crate::onnx::builder::{Dim, model, node, opset, tensor_f32, value};
+    use crate::onnx::proto::GraphProto;
+    use crate::onnx::proto::tensor_proto::DataType;
+
+    /// The inputs read without decoding the weights are those loading the model reads: graph
+    /// inputs in order, less an initializer also declared as an input (ONNX IR.md, "Graphs":
+    /// an initializer may also be named among the graph inputs, as IR versions before 4
+    /// required; paraphrased from memory).
+    #[test]
+    fn inputs_read_alone_are_those_of_the_loaded_model() {
+        let weights: Vec<f32> = (0..4096).map(|i| i as f32).collect();
+        let graph = GraphProto {
+            name: Some("g".into()),
+            node: vec![
+                node("Mul", "mul", &["x", "w"], &["xw"], vec![]),
+                node("Add", "add", &["xw", "z"], &["y"], vec![]),
+            ],
+            initializer: vec![tensor_f32("w", &[4096], &weights)],
+            input: vec![
+                value(
+                    "x",
+                    DataType::Float,
+                    &[Dim::Named("batch"), Dim::Size(4096)],
+                ),
+                value("w", DataType::Float, &[Dim::Size(4096)]),
+                value("z", DataType::Float, &[Dim::Size(1), Dim::Size(4096)]),
+            ],
+            output: vec![value(
+                "y",
+                DataType::Float,
+                &[Dim::Named("batch"), Dim::Size(4096)],
+            )],
+            ..Default::default()
+        };
+        let bytes = model(graph, vec![opset("", 17)], "test").encode_to_vec();
+        let specs = input_specs(&bytes).unwrap();
+        let names: Vec<&str> = specs.iter().map(|s| s.name.as_str()).collect();
+        assert_eq!(names, ["x", "z"]);
+        assert_eq!(specs, prepare(&bytes, None).unwrap().inputs());
     }
 }

@@ -4,7 +4,7 @@
 use std::collections::HashSet;
 use std::fmt;
 
-use tract_onnx::pb::GraphProto;
+use tract_onnx::pb::ValueInfoProto;
 use tract_onnx::pb::tensor_proto::DataType;
 use tract_onnx::pb::tensor_shape_proto::dimension::Value;
 use tract_onnx::pb::type_proto;
@@ -91,10 +91,11 @@ impl InputSpec {
 }
 
 /// Reads the graph inputs that are not initializers, in graph order.
-pub(crate) fn read_inputs(graph: &GraphProto) -> Result<Vec<InputSpec>, RunError> {
-    let initializers: HashSet<&str> = graph.initializer.iter().map(|t| t.name.as_str()).collect();
-    graph
-        .input
+pub(crate) fn read_inputs(
+    inputs: &[ValueInfoProto],
+    initializers: &HashSet<&str>,
+) -> Result<Vec<InputSpec>, RunError> {
+    inputs
         .iter()
         .filter(|i| !initializers.contains(i.name.as_str()))
         .map(|input| {

@@ -739,7 +739,6 @@ fn measure_local(
             let tract = side.prepare(&isolate::build(side.model, parts), what)?;
             capture::run_samples(&tract, &samples, &[], what)
         };
-        // The two sides run at once, one of them on a thread of its own.
         let runs = run_isolated(a, &parts_a, "isolated original sites")
             .and_then(|ra| Ok((ra, run_isolated(b, &parts_b, "isolated new sites")?)));
         let (out_a, out_b) = match runs {
